@@ -1,0 +1,5 @@
+import sys
+
+from cohortstone.cli import main
+
+sys.exit(main())

@@ -1,0 +1,55 @@
+"""Command line: `cohortstone run CONFIG [--out DIR]` and `cohortstone check CONFIG`.
+
+User errors print one paragraph and exit with code 2; `--debug` shows the traceback.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+
+from cohortstone import __version__
+from cohortstone.errors import CohortstoneError
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="cohortstone",
+        description="Design-correct analyses of kidney-stone surveys and cohorts from one YAML file.")
+    parser.add_argument("--version", action="version", version=f"cohortstone {__version__}")
+    commands = parser.add_subparsers(dest="command", required=True)
+    run = commands.add_parser("run", help="run the whole analysis and write the report folder")
+    run.add_argument("config", help="the study's YAML file")
+    run.add_argument("--out", help="output folder (default: the config's `output`, or reports)")
+    run.add_argument("--debug", action="store_true", help="show a traceback on errors")
+    check = commands.add_parser("check", help="validate config and data without fitting")
+    check.add_argument("config", help="the study's YAML file")
+    check.add_argument("--debug", action="store_true", help="show a traceback on errors")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    from cohortstone import pipeline
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("default")
+            if args.command == "check":
+                print(pipeline.check(args.config))
+                return 0
+            results = pipeline.run(args.config, out=args.out)
+    except CohortstoneError as exc:
+        if args.debug:
+            raise
+        print(f"cohortstone: error: {exc.describe()}", file=sys.stderr)
+        return 2
+    flagged = results.odds_ratios.loc[results.odds_ratios["flag"].fillna("") != "", "model"]
+    print(f"wrote {results.output_dir}/ (odds_ratios.csv, forest.png, forest.svg, "
+          "manifest.json, report.html)")
+    for model in flagged.unique():
+        print(f"note: model `{model}` was not estimated; see the flag column.", file=sys.stderr)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,368 @@
+"""Frozen specs of a study, and the one-pass validation that builds them from raw YAML.
+
+Every default lives here. Validation collects every problem in the file before failing, and
+each message names the key path, its YAML line and what was expected.
+"""
+from __future__ import annotations
+
+import difflib
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from cohortstone.config.conditions import Condition, ConditionSyntaxError, parse_condition
+from cohortstone.config.load import RawConfig, dotted
+from cohortstone.errors import ConfigError
+
+NAME_PATTERN = re.compile(r"^[a-z0-9_-]+$")
+SOURCES = ("table", "demo")  # nhanes: planned (see the README)
+DEMO_DATASETS = ("survey",)
+MODEL_TYPES = ("logistic",)  # recurrence: planned
+PLANNED = {
+    ("source", "nhanes"): "the `nhanes` source is planned but not available in this version; "
+    "use `source: table` with a file you prepared, or `source: demo`",
+    ("type", "recurrence"): "`recurrence` models are planned but not available in this "
+    "version; use `type: logistic`",
+    ("key", "prevalence"): "the `prevalence` block is planned but not available in this version",
+}
+SINGLE_CLUSTER_RULES = ("error", "overall_mean")
+
+
+@dataclass(frozen=True)
+class DataSpec:
+    source: str
+    path: Path | None = None
+    dataset: str | None = None
+    rename: tuple[tuple[str, str], ...] = ()
+
+
+@dataclass(frozen=True)
+class DeriveSpec:
+    """A column computed right after loading: groups by cut points, or a unit change."""
+
+    name: str
+    source_column: str
+    cuts: tuple[float, ...] | None = None
+    times: float | None = None
+
+
+@dataclass(frozen=True)
+class DesignSpec:
+    weight: str | None = None
+    strata: str | None = None
+    cluster: str | None = None
+    single_cluster_strata: str = "error"
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    name: str
+    type: str
+    outcome: str
+    exposure: str
+    per: float = 1.0
+    cuts: tuple[float, ...] | None = None
+    quantiles: int | None = None
+    adjust: tuple[str, ...] = ()
+    categorical: tuple[str, ...] = ()
+    reference: tuple[tuple[str, str], ...] = ()
+
+    def columns(self) -> list[str]:
+        """Every data column the model reads, outcome first."""
+        return list(dict.fromkeys([self.outcome, self.exposure, *self.adjust]))
+
+
+@dataclass(frozen=True)
+class Study:
+    """A whole validated config."""
+
+    name: str
+    title: str
+    output: Path
+    data: DataSpec
+    derive: tuple[DeriveSpec, ...] = ()
+    population: tuple[Condition, ...] = ()
+    design: DesignSpec | None = None
+    models: tuple[ModelSpec, ...] = ()
+    config_file: str | None = None
+    raw: Any = field(default=None, compare=False, repr=False)
+
+
+# ---- the validator -----------------------------------------------------------------------
+
+
+class _Checker:
+    """Walks the raw document, collecting problems instead of stopping at the first."""
+
+    def __init__(self, raw: RawConfig):
+        self.raw = raw
+        self.problems: list[str] = []
+
+    def fail(self, path: tuple, message: str) -> None:
+        line = self.raw.line(path)
+        where = f"key `{dotted(path)}`" if path else "the file"
+        if line is not None:
+            where += f" (line {line})"
+        self.problems.append(f"{where}: {message}")
+
+    def mapping(self, path: tuple, value: Any, required: tuple, optional: tuple) -> dict | None:
+        if not isinstance(value, dict):
+            self.fail(path, f"expected a mapping of keys, found {_kind(value)}.")
+            return None
+        allowed = required + optional
+        for key in value:
+            if key in allowed:
+                continue
+            if ("key", key) in PLANNED:
+                self.fail(path + (key,), PLANNED[("key", key)] + ".")
+                continue
+            close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+            hint = f" Did you mean `{close[0]}`?" if close else ""
+            self.fail(path + (key,), f"unknown key.{hint} Allowed here: {', '.join(allowed)}.")
+        for key in required:
+            if key not in value:
+                self.fail(path, f"the required key `{key}` is missing.")
+        return value
+
+    def text(self, path: tuple, value: Any, pattern: re.Pattern | None = None,
+             what: str = "text") -> str | None:
+        if not isinstance(value, str) or not value.strip():
+            self.fail(path, f"expected {what}, found {_kind(value)}.")
+            return None
+        if pattern is not None and not pattern.match(value):
+            self.fail(path, f"expected {what}, found {value!r}.")
+            return None
+        return value
+
+    def choice(self, path: tuple, value: Any, choices: tuple, kind: str) -> str | None:
+        if (kind, value) in PLANNED:
+            self.fail(path, PLANNED[(kind, value)] + ".")
+            return None
+        if value not in choices:
+            close = difflib.get_close_matches(str(value), choices, n=1, cutoff=0.5)
+            hint = f" Did you mean `{close[0]}`?" if close else ""
+            self.fail(path, f"expected one of {', '.join(choices)}, found {value!r}.{hint}")
+            return None
+        return value
+
+    def number(self, path: tuple, value: Any, positive: bool = False) -> float | None:
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            self.fail(path, f"expected a number, found {_kind(value)}.")
+            return None
+        if positive and not value > 0:
+            self.fail(path, f"expected a number above 0, found {value}.")
+            return None
+        return float(value)
+
+    def names(self, path: tuple, value: Any) -> tuple[str, ...]:
+        if isinstance(value, str):
+            value = [value]
+        if not isinstance(value, list):
+            self.fail(path, f"expected a list of column names, found {_kind(value)}.")
+            return ()
+        out = []
+        for i, item in enumerate(value):
+            name = self.text(path + (i,), item, what="a column name")
+            if name is not None:
+                out.append(name)
+        return tuple(out)
+
+    def cuts(self, path: tuple, value: Any) -> tuple[float, ...] | None:
+        if not isinstance(value, list) or not value:
+            self.fail(path, f"expected a list of increasing cut points, found {_kind(value)}.")
+            return None
+        numbers = [self.number(path + (i,), v) for i, v in enumerate(value)]
+        if any(n is None for n in numbers):
+            return None
+        if any(b <= a for a, b in zip(numbers, numbers[1:])):
+            self.fail(path, f"cut points must increase strictly, found {value}.")
+            return None
+        return tuple(numbers)  # type: ignore[arg-type]
+
+
+def _kind(value: Any) -> str:
+    if value is None:
+        return "nothing"
+    if isinstance(value, dict):
+        return "a mapping"
+    if isinstance(value, list):
+        return "a list"
+    return f"{type(value).__name__} {value!r}"
+
+
+def _data(c: _Checker, raw: Any) -> DataSpec | None:
+    path = ("data",)
+    if not isinstance(raw, dict):
+        c.mapping(path, raw, ("source",), ())
+        return None
+    source = c.choice(path + ("source",), raw.get("source"), SOURCES, "source")
+    optional = {"table": ("path", "rename"), "demo": ("dataset", "rename")}.get(source, ())
+    required = ("source", "path") if source == "table" else ("source",)
+    c.mapping(path, raw, required, tuple(k for k in optional if k not in required))
+    if source is None:
+        return None
+    file = None
+    if source == "table" and "path" in raw:
+        text = c.text(path + ("path",), raw["path"], what="the path of a .parquet or .csv file")
+        if text is not None:
+            file = Path(text)
+            if file.suffix.lower() not in (".parquet", ".csv"):
+                c.fail(path + ("path",), f"expected a .parquet or .csv file, found {text!r}.")
+            file = file if file.is_absolute() else c.raw.directory / file
+    dataset = None
+    if source == "demo":
+        dataset = c.choice(path + ("dataset",), raw.get("dataset", "survey"), DEMO_DATASETS,
+                           "dataset")
+    rename: list[tuple[str, str]] = []
+    if "rename" in raw:
+        if not isinstance(raw["rename"], dict):
+            c.fail(path + ("rename",), "expected a mapping `raw_name: schema_name`.")
+        else:
+            for old, new in raw["rename"].items():
+                if c.text(path + ("rename", old), new, NAME_PATTERN, "a snake_case column name"):
+                    rename.append((str(old), new))
+    return DataSpec(source=source, path=file, dataset=dataset, rename=tuple(rename))
+
+
+def _derive(c: _Checker, raw: Any) -> tuple[DeriveSpec, ...]:
+    if not isinstance(raw, dict):
+        c.fail(("derive",), f"expected a mapping of new column names, found {_kind(raw)}.")
+        return ()
+    out = []
+    for name, rule in raw.items():
+        path = ("derive", name)
+        c.text(path, name, NAME_PATTERN, "a snake_case column name")
+        if not c.mapping(path, rule, ("from",), ("cuts", "times")):
+            continue
+        source = c.text(path + ("from",), rule.get("from"), what="a column name")
+        if ("cuts" in rule) == ("times" in rule):
+            c.fail(path, "give exactly one of `cuts` (groups) or `times` (unit change).")
+            continue
+        cuts = c.cuts(path + ("cuts",), rule["cuts"]) if "cuts" in rule else None
+        times = c.number(path + ("times",), rule["times"]) if "times" in rule else None
+        if source is not None and (cuts is not None or times is not None):
+            out.append(DeriveSpec(name=name, source_column=source, cuts=cuts, times=times))
+    return tuple(out)
+
+
+def _population(c: _Checker, raw: Any) -> tuple[Condition, ...]:
+    items = [raw] if isinstance(raw, str) else raw
+    if not isinstance(items, list):
+        c.fail(("population",), f"expected a list of conditions, found {_kind(raw)}.")
+        return ()
+    out = []
+    for i, text in enumerate(items):
+        path = ("population",) if isinstance(raw, str) else ("population", i)
+        if not isinstance(text, str):
+            c.fail(path, f"expected a condition such as `age_years >= 20`, found {_kind(text)}.")
+            continue
+        try:
+            out.append(parse_condition(text))
+        except ConditionSyntaxError as exc:
+            c.fail(path, f"cannot read condition `{text}`: {exc}.")
+    return tuple(out)
+
+
+def _design(c: _Checker, raw: Any) -> DesignSpec | None:
+    path = ("design",)
+    if not c.mapping(path, raw, (), ("weight", "strata", "cluster", "single_cluster_strata")):
+        return None
+    cols = {k: c.text(path + (k,), raw[k], what="a column name")
+            for k in ("weight", "strata", "cluster") if k in raw}
+    if not any(cols.values()):
+        c.fail(path, "name at least one of `weight`, `strata`, `cluster`.")
+    rule = raw.get("single_cluster_strata", "error")
+    rule = c.choice(path + ("single_cluster_strata",), rule, SINGLE_CLUSTER_RULES, "rule")
+    return DesignSpec(single_cluster_strata=rule or "error", **cols)
+
+
+_MODEL_KEYS = ("per", "cuts", "quantiles", "adjust", "categorical", "reference")
+
+
+def _model(c: _Checker, path: tuple, raw: Any) -> ModelSpec | None:
+    if not isinstance(raw, dict):
+        c.fail(path, f"expected a model mapping, found {_kind(raw)}.")
+        return None
+    kind = c.choice(path + ("type",), raw.get("type", "logistic"), MODEL_TYPES, "type")
+    c.mapping(path, raw, ("name", "outcome", "exposure"), ("type",) + _MODEL_KEYS)
+    name = c.text(path + ("name",), raw.get("name"), NAME_PATTERN,
+                  "a model name of lower-case letters, digits, - or _") if "name" in raw else None
+    outcome = c.text(path + ("outcome",), raw.get("outcome"), what="a column name") \
+        if "outcome" in raw else None
+    exposure = c.text(path + ("exposure",), raw.get("exposure"), what="a column name") \
+        if "exposure" in raw else None
+    codings = [k for k in ("per", "cuts", "quantiles") if k in raw]
+    if len(codings) > 1:
+        c.fail(path, f"give at most one of `per`, `cuts`, `quantiles`; found {codings}.")
+    per = c.number(path + ("per",), raw["per"], positive=True) if "per" in raw else 1.0
+    cuts = c.cuts(path + ("cuts",), raw["cuts"]) if "cuts" in raw else None
+    quantiles = None
+    if "quantiles" in raw:
+        q = raw["quantiles"]
+        if isinstance(q, bool) or not isinstance(q, int) or not 2 <= q <= 10:
+            c.fail(path + ("quantiles",), f"expected a whole number from 2 to 10, found {q!r}.")
+        else:
+            quantiles = q
+    adjust = c.names(path + ("adjust",), raw.get("adjust", []))
+    categorical = c.names(path + ("categorical",), raw.get("categorical", []))
+    reference: list[tuple[str, str]] = []
+    if "reference" in raw:
+        if not isinstance(raw["reference"], dict):
+            c.fail(path + ("reference",), "expected a mapping `column: level`.")
+        else:
+            used = {exposure, *adjust}
+            for col, level in raw["reference"].items():
+                if col not in used:
+                    c.fail(path + ("reference", col), "this column is neither the exposure nor in "
+                           "`adjust`; a reference level only applies to a model's own columns.")
+                reference.append((str(col), str(level)))
+    if exposure is not None and exposure in adjust:
+        c.fail(path + ("adjust",), f"the exposure `{exposure}` is also listed in `adjust`.")
+    if outcome is not None and outcome in (exposure, *adjust):
+        c.fail(path + ("outcome",), "the outcome cannot also be the exposure or a covariate.")
+    if None in (kind, name, outcome, exposure):
+        return None
+    return ModelSpec(name=name, type=kind, outcome=outcome, exposure=exposure,  # type: ignore
+                     per=per or 1.0, cuts=cuts, quantiles=quantiles, adjust=adjust,
+                     categorical=categorical, reference=tuple(reference))
+
+
+def parse_study(raw: RawConfig) -> Study:
+    """Validate the whole document in one pass; raise one `ConfigError` listing every fault."""
+    c = _Checker(raw)
+    doc = raw.data
+    if not c.mapping((), doc, ("name", "data", "models"),
+                     ("title", "output", "derive", "population", "design")):
+        raise ConfigError(c.problems, file=raw.file)
+    name = c.text(("name",), doc.get("name"), NAME_PATTERN,
+                  "an output name of lower-case letters, digits, - or _ (it names a folder "
+                  "inside the output folder, so `/` and `..` are not allowed)") \
+        if "name" in doc else None
+    title = doc.get("title", name or "")
+    if not isinstance(title, str):
+        c.fail(("title",), f"expected text, found {_kind(title)}.")
+    output = c.text(("output",), doc.get("output", "reports"), what="a folder path")
+    data = _data(c, doc["data"]) if "data" in doc else None
+    derive = _derive(c, doc["derive"]) if "derive" in doc else ()
+    population = _population(c, doc["population"]) if "population" in doc else ()
+    design = _design(c, doc["design"]) if "design" in doc else None
+    models: list[ModelSpec] = []
+    raw_models = doc.get("models")
+    if "models" in doc and (not isinstance(raw_models, list) or not raw_models):
+        c.fail(("models",), f"expected a non-empty list of models, found {_kind(raw_models)}.")
+    elif isinstance(raw_models, list):
+        for i, item in enumerate(raw_models):
+            model = _model(c, ("models", i), item)
+            if model is not None:
+                models.append(model)
+        seen: set[str] = set()
+        for i, model in enumerate(models):
+            if model.name in seen:
+                c.fail(("models", i, "name"), f"the model name `{model.name}` is used twice.")
+            seen.add(model.name)
+    if c.problems:
+        raise ConfigError(c.problems, file=raw.file)
+    return Study(name=name, title=str(title), output=Path(output), data=data,  # type: ignore
+                 derive=derive, population=population, design=design, models=tuple(models),
+                 config_file=raw.file, raw=doc)

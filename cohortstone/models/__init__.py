@@ -1,0 +1,1 @@
+"""Models: each returns estimates plus what the design needs for its variance."""

@@ -1,0 +1,186 @@
+"""The one module that knows the stage order: config -> data -> domain -> models -> outputs."""
+from __future__ import annotations
+
+import time
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Iterator
+
+import numpy as np
+import pandas as pd
+
+from cohortstone import sources
+from cohortstone.config.load import load_yaml
+from cohortstone.config.spec import ModelSpec, Study, parse_study
+from cohortstone.derive import apply_derive
+from cohortstone.design import Design, make_design
+from cohortstone.exposure import ModelMatrix, build, trend_matrix
+from cohortstone.models import logistic
+from cohortstone.models.fit import wald_test
+from cohortstone.models.summary import odds_ratio_rows
+from cohortstone.population import domain
+from cohortstone.report import forest, html, manifest
+from cohortstone.report.files import staged_folder, write_text
+from cohortstone.report.tables import to_csv
+from cohortstone.sources.demo import LABEL as DEMO_LABEL
+
+
+@dataclass(frozen=True)
+class Results:
+    """What a run produced: the tidy tables, the manifest, and where the files went."""
+
+    study: Study
+    odds_ratios: pd.DataFrame
+    manifest: dict
+    output_dir: Path | None = None
+
+
+@dataclass
+class _Clock:
+    stages: dict = field(default_factory=dict)
+
+    @contextmanager
+    def stage(self, name: str) -> Iterator[None]:
+        start = time.perf_counter()
+        yield
+        self.stages[name] = round(time.perf_counter() - start, 4)
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """Everything up to (not including) fitting: shared by `run` and `check`."""
+
+    study: Study
+    frame: pd.DataFrame
+    population: np.ndarray
+    flow: list
+    design: Design
+    matrices: dict
+
+
+def study_from(config: str | Path | dict | Study) -> Study:
+    if isinstance(config, Study):
+        return config
+    return parse_study(load_yaml(config))
+
+
+def prepare(study: Study, clock: _Clock) -> Prepared:
+    with clock.stage("load"):
+        frame = sources.load(study.data)
+    with clock.stage("derive"):
+        frame = apply_derive(frame, study.derive)
+    with clock.stage("population"):
+        population, flow = domain(frame, study.population)
+    with clock.stage("design"):
+        design = make_design(frame, study.design)
+    with clock.stage("coding"):
+        matrices = {m.name: build(frame, m, population, design.weight) for m in study.models}
+    return Prepared(study, frame, population, flow, design, matrices)
+
+
+def _fit_model(spec: ModelSpec, matrix: ModelMatrix, design: Design) -> pd.DataFrame:
+    w = design.weight * matrix.in_model
+    names = matrix.names()
+    fit = logistic.fit(matrix.x, matrix.y, w, design, names)
+    p_trend = p_joint = None
+    exposure_cols = [j for j, c in enumerate(matrix.columns) if c.role == "exposure"]
+    coding = matrix.exposure_coding
+    if coding.kind != "continuous" and not fit.flag:
+        p_joint = wald_test(fit, exposure_cols)
+        if coding.kind in ("cuts", "quantiles"):
+            trend = logistic.fit(trend_matrix(matrix), matrix.y, w, design, names)
+            p_trend = None if trend.flag else wald_test(trend, [1])
+    return odds_ratio_rows(spec, matrix, fit, p_trend, p_joint)
+
+
+def _flow_rows(prepared: Prepared) -> list[dict]:
+    rows = [{"Step": "records read", "People": len(prepared.frame)}]
+    rows += [{"Step": f"population: {f['step']}", "People": f["remaining"]}
+             for f in prepared.flow]
+    for name, matrix in prepared.matrices.items():
+        for reason, count in matrix.dropped.items():
+            rows.append({"Step": f"{name}: leave for {reason}", "People": -count})
+        rows.append({"Step": f"{name}: analysed", "People": int(matrix.in_model.sum())})
+    return rows
+
+
+def _source_text(study: Study) -> str:
+    if study.data.source == "demo":
+        return f"the built-in demo dataset `{study.data.dataset}` — {DEMO_LABEL}"
+    return f"table file {study.data.path.name}"
+
+
+def run(config: str | Path | dict | Study, out: str | Path | None = None,
+        write: bool = True) -> Results:
+    """Whole pipeline; writes `<out>/<name>/` atomically unless `write` is False."""
+    started = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    clock = _Clock()
+    with clock.stage("config"):
+        study = study_from(config)
+    prepared = prepare(study, clock)
+    fit_seconds, tables = {}, []
+    with clock.stage("models"):
+        for spec in study.models:
+            start = time.perf_counter()
+            tables.append(_fit_model(spec, prepared.matrices[spec.name], prepared.design))
+            fit_seconds[spec.name] = round(time.perf_counter() - start, 4)
+    odds_ratios = pd.concat(tables, ignore_index=True)
+    inputs = {str(p): manifest.sha256(p) for p in sources.input_files(study.data)}
+    if study.config_file:
+        inputs = {study.config_file: manifest.sha256(Path(study.config_file)), **inputs}
+    dfs = sorted({int(d) for d in odds_ratios["df"].dropna()})
+    info = {
+        "invented": DEMO_LABEL if study.data.source == "demo" else None,
+        "source_text": _source_text(study),
+        "inputs": {Path(k).name: v for k, v in inputs.items()},
+        "flow": _flow_rows(prepared),
+        "outcomes": {m.name: m.outcome for m in study.models},
+        "codings": {n: m.codings for n, m in prepared.matrices.items()},
+        "df_text": ", ".join(map(str, dfs)) + " df" if dfs else "",
+        "versions": manifest.versions(),
+    }
+    record = {
+        "name": study.name, "started": started, "config": study.raw,
+        "inputs_sha256": inputs, "versions": info["versions"],
+        "rows": {"read": len(prepared.frame), "population_flow": prepared.flow,
+                 "in_population": int(prepared.population.sum()),
+                 "models": {n: {"analysed": int(m.in_model.sum()), "left_domain": m.dropped}
+                            for n, m in prepared.matrices.items()}},
+        "codings": info["codings"],
+        "seconds": {"stages": clock.stages, "model_fits": fit_seconds},
+    }
+    target = None
+    if write:
+        with clock.stage("write"):
+            png, svg = forest.render(odds_ratios)
+            page = html.page(study, odds_ratios, svg, info)
+            target = Path(out if out is not None else study.output) / study.name
+            with staged_folder(target) as folder:
+                write_text(folder, "odds_ratios.csv", to_csv(odds_ratios))
+                (folder / "forest.png").write_bytes(png)
+                write_text(folder, "forest.svg", svg)
+                write_text(folder, "report.html", page)
+                record["seconds"]["stages"] = dict(clock.stages)
+                write_text(folder, "manifest.json", manifest.to_json(record))
+    return Results(study=study, odds_ratios=odds_ratios, manifest=record, output_dir=target)
+
+
+def check(config: str | Path | dict | Study) -> str:
+    """Validate config and data (columns, codes, design) without fitting; return a summary."""
+    clock = _Clock()
+    study = study_from(config)
+    prepared = prepare(study, clock)
+    lines = [f"config `{study.name}`: valid",
+             f"data: {len(prepared.frame)} rows, {prepared.frame.shape[1]} columns "
+             f"({_source_text(study)})",
+             f"population: {int(prepared.population.sum())} rows"]
+    d = prepared.design
+    if d.design_based:
+        lines.append(f"design: {d.n_strata} strata, {d.n_clusters} clusters")
+    for name, matrix in prepared.matrices.items():
+        left = ", ".join(f"{v} {k}" for k, v in matrix.dropped.items()) or "none"
+        lines.append(f"model `{name}`: {int(matrix.in_model.sum())} rows analysed, "
+                     f"{int(matrix.y[matrix.in_model].sum())} cases; left the domain: {left}")
+    return "\n".join(lines)
