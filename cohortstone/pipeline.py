@@ -16,6 +16,7 @@ from cohortstone.config.load import load_yaml
 from cohortstone.config.spec import ModelSpec, Study, parse_study
 from cohortstone.derive import apply_derive
 from cohortstone.design import Design, make_design
+from cohortstone.errors import DataError, DesignError
 from cohortstone.exposure import ModelMatrix, build, trend_matrix
 from cohortstone.models import logistic
 from cohortstone.models.fit import wald_test
@@ -66,7 +67,21 @@ def study_from(config: str | Path | dict | Study) -> Study:
     return parse_study(load_yaml(config))
 
 
+def _where(study: Study) -> str:
+    config = Path(study.config_file).name if study.config_file else "config"
+    data = study.data.path.name if study.data.path is not None else f"demo {study.data.dataset}"
+    return f"{config} (data: {data})"
+
+
 def prepare(study: Study, clock: _Clock) -> Prepared:
+    """Load, derive, apply the population, build the design and code every model."""
+    try:
+        return _prepare(study, clock)
+    except (DataError, DesignError) as exc:
+        raise type(exc)(f"{_where(study)}: {exc}") from None
+
+
+def _prepare(study: Study, clock: _Clock) -> Prepared:
     with clock.stage("load"):
         frame = sources.load(study.data)
     with clock.stage("derive"):
