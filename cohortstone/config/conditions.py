@@ -101,10 +101,10 @@ def _tokenize(text: str) -> list[tuple[str, str, int]]:
                 "`is missing`, `and`, `or`, `not` and parentheses"
             )
         kind = match.lastgroup
-        value = match.group(kind)
+        value, start = match.group(kind), match.start(kind)
         if kind == "word" and value.lower() in _KEYWORDS:
             kind, value = "keyword", value.lower()
-        tokens.append((kind, value, match.start(kind)))
+        tokens.append((kind, value, start))
         pos = match.end()
     tokens.append(("end", "", len(stripped)))
     return tokens

@@ -31,8 +31,15 @@ class RawConfig:
         return None
 
 
+_PLAIN_TAGS = {f"tag:yaml.org,2002:{t}" for t in
+               ("map", "seq", "str", "int", "float", "bool", "null", "timestamp")}
+
+
 def _construct(node: yaml.Node, path: KeyPath, lines: dict) -> Any:
     lines.setdefault(path, node.start_mark.line + 1)
+    if node.tag not in _PLAIN_TAGS:
+        raise ConfigError(f"line {node.start_mark.line + 1}: the YAML tag `{node.tag}` is not "
+                          "allowed; a config holds only plain text, numbers, lists and mappings.")
     if isinstance(node, yaml.MappingNode):
         out: dict = {}
         for key_node, value_node in node.value:

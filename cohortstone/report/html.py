@@ -161,5 +161,9 @@ def page(study: Study, odds_ratios: pd.DataFrame, forest_svg: str, info: dict) -
 
 
 def _strip_xml_header(svg: str) -> str:
-    start = svg.find("<svg")
-    return svg[start:] if start >= 0 else svg
+    """The SVG element alone, without the XML prologue and the metadata block."""
+    svg = svg[svg.find("<svg"):]
+    start, end = svg.find("<metadata>"), svg.find("</metadata>")
+    if start >= 0 and end > start:
+        svg = svg[:start] + svg[end + len("</metadata>"):]
+    return svg
