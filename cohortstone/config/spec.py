@@ -317,6 +317,9 @@ def _model(c: _Checker, path: tuple, raw: Any) -> ModelSpec | None:
                     c.fail(path + ("reference", col), "this column is neither the exposure nor in "
                            "`adjust`; a reference level only applies to a model's own columns.")
                 reference.append((str(col), str(level)))
+    for i, col in enumerate(categorical):
+        if col not in (exposure, *adjust):
+            c.fail(path + ("categorical", i), f"`{col}` is neither the exposure nor in `adjust`.")
     if exposure is not None and exposure in adjust:
         c.fail(path + ("adjust",), f"the exposure `{exposure}` is also listed in `adjust`.")
     if outcome is not None and outcome in (exposure, *adjust):

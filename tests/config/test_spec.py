@@ -63,6 +63,7 @@ def test_a_dict_config_is_accepted_for_notebooks():
     ("adjust: [water_l_day]", "is also listed in `adjust`"),
     ("reference: {bmi: '1'}", "neither the exposure nor in `adjust`"),
     ("type: recurrence", "planned but not available"),
+    ("categorical: [race]", "`race` is neither the exposure nor in `adjust`"),
     ("expsure: x", "Did you mean `exposure`?"),
 ])
 def test_model_mistakes_are_named_with_key_and_line(snippet, message, tmp_path):
