@@ -10,9 +10,11 @@ full count (NHANES tutorials, variance estimation module).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
+from scipy import sparse
 
 from cohortstone.config.spec import DesignSpec
 from cohortstone.errors import DataError, DesignError
@@ -36,6 +38,17 @@ class Design:
     @property
     def n_strata(self) -> int:
         return len(self.stratum_labels)
+
+    @cached_property
+    def rows_by_cluster(self) -> tuple[np.ndarray, np.ndarray]:
+        """Row numbers grouped by cluster (file order kept within a cluster) and the offsets
+        where each cluster's rows start: the layout of a cluster × row indicator matrix."""
+        counts = np.bincount(self.cluster, minlength=self.n_clusters)
+        offsets = np.zeros(self.n_clusters + 1, dtype=np.intp)
+        np.cumsum(counts, out=offsets[1:])
+        small = np.uint16 if self.n_clusters <= np.iinfo(np.uint16).max else self.cluster.dtype
+        rows = np.argsort(self.cluster.astype(small, copy=False), kind="stable")  # radix sort
+        return rows, offsets
 
 
 def _codes(values: pd.Series) -> tuple[np.ndarray, np.ndarray]:
@@ -106,12 +119,15 @@ def single_cluster_strata(design: Design) -> list:
 
 
 def cluster_totals(design: Design, matrix: np.ndarray, multiplier: np.ndarray) -> np.ndarray:
-    """Sum `matrix[i] * multiplier[i]` within clusters, column by column (no n×p temporary)."""
-    totals = np.empty((design.n_clusters, matrix.shape[1]))
-    for j in range(matrix.shape[1]):
-        totals[:, j] = np.bincount(design.cluster, weights=matrix[:, j] * multiplier,
-                                   minlength=design.n_clusters)
-    return totals
+    """Sum `matrix[i] * multiplier[i]` within clusters (no n×p temporary).
+
+    One pass over the rows: a sparse cluster × row matrix holding the multipliers times
+    `matrix`; rows are added in file order within each cluster.
+    """
+    rows, offsets = design.rows_by_cluster
+    indicator = sparse.csr_matrix((np.asarray(multiplier, dtype=float)[rows], rows, offsets),
+                                  shape=(design.n_clusters, len(design.cluster)))
+    return np.asarray(indicator @ np.asarray(matrix, dtype=float))
 
 
 def covariance_of_totals(design: Design, totals: np.ndarray) -> np.ndarray:
