@@ -1,0 +1,44 @@
+"""Shared fixtures: the path to Rscript for the checks against R's survey package.
+
+When R or its `survey` package is missing, those checks are skipped with a reason that says
+so plainly, and the end of the pytest run repeats it, so a green run without R cannot pass
+for a verified one.
+"""
+from __future__ import annotations
+
+import shutil
+import subprocess
+
+import pytest
+
+R_MISSING = "R's survey package not found: the reference checks against R did NOT run"
+
+
+@pytest.fixture(scope="session")
+def rscript() -> str:
+    """Path of Rscript, once `library(survey)` is known to load; otherwise skip loudly."""
+    path = shutil.which("Rscript")
+    if path is None:
+        pytest.skip(f"{R_MISSING} (no `Rscript` on PATH)")
+    try:
+        probe = subprocess.run(
+            [path, "--vanilla", "-e", "suppressPackageStartupMessages(library(survey))"],
+            capture_output=True, text=True, timeout=120,
+        )
+    except (OSError, subprocess.TimeoutExpired) as exc:
+        pytest.skip(f"{R_MISSING} ({path} could not be run: {exc})")
+    if probe.returncode != 0:
+        detail = (probe.stderr.strip().splitlines() or ["no message"])[-1]
+        pytest.skip(f"{R_MISSING} ({path}: {detail})")
+    return path
+
+
+def pytest_terminal_summary(terminalreporter, exitstatus, config):
+    """Repeat the missing-R sentence at the end of the run whenever a check was skipped for it."""
+    skipped = [rep for rep in terminalreporter.stats.get("skipped", [])
+               if R_MISSING in str(getattr(rep, "longrepr", ""))]
+    if skipped:
+        terminalreporter.write_sep("!", R_MISSING, red=True, bold=True)
+        terminalreporter.write_line(
+            f"{len(skipped)} test(s) comparing cohortstone with R were skipped; install R and "
+            "its `survey` package to run them.", red=True, bold=True)
