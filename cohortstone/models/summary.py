@@ -47,10 +47,12 @@ def odds_ratio_rows(spec: ModelSpec, matrix: ModelMatrix, fit: Fit,
             level = matrix.columns[j].level
             mask = matrix.x[:, j] == 1 if level else everyone
             n, cases = _counts(matrix, mask)
-            rows.append(dict(term=term, level=level, role=role, per=per,
-                             odds_ratio=np.exp(b), ci_lower=np.exp(b - t * se),
-                             ci_upper=np.exp(b + t * se), p_value=p[j], n=n, cases=cases,
-                             log_odds_ratio=b, se=se))
+            ratios = dict(odds_ratio=np.nan, ci_lower=np.nan, ci_upper=np.nan)
+            if not fit.flag:  # a flagged fit's numbers are never exponentiated or shown
+                ratios = dict(odds_ratio=np.exp(b), ci_lower=np.exp(b - t * se),
+                              ci_upper=np.exp(b + t * se))
+            rows.append(dict(term=term, level=level, role=role, per=per, **ratios,
+                             p_value=p[j], n=n, cases=cases, log_odds_ratio=b, se=se))
     frame = pd.DataFrame(rows)
     frame.insert(0, "model", spec.name)
     frame["df"] = fit.df if fit.df is not None else np.nan
