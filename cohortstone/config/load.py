@@ -47,7 +47,7 @@ def _construct(node: yaml.Node, path: KeyPath, lines: dict) -> Any:
             lines[path + (key,)] = key_node.start_mark.line + 1
             if key in out:
                 raise ConfigError(
-                    f"key `{_dotted(path + (key,))}` (line {key_node.start_mark.line + 1}) "
+                    f"key `{dotted(path + (key,))}` (line {key_node.start_mark.line + 1}) "
                     "appears twice; keep one."
                 )
             out[key] = _construct(value_node, path + (key,), lines)
@@ -66,16 +66,12 @@ def _scalar(node: yaml.Node) -> Any:
 _LOADER = yaml.SafeLoader("")
 
 
-def _dotted(path: KeyPath) -> str:
+def dotted(path: KeyPath) -> str:
+    """`('models', 0, 'type')` -> `models[0].type`."""
     out = ""
     for part in path:
         out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
     return out
-
-
-def dotted(path: KeyPath) -> str:
-    """`('models', 0, 'type')` -> `models[0].type`."""
-    return _dotted(path)
 
 
 def load_yaml(source: str | Path | dict) -> RawConfig:
