@@ -43,11 +43,15 @@ def main(argv: list[str] | None = None) -> int:
             raise
         print(f"cohortstone: error: {exc.describe()}", file=sys.stderr)
         return 2
-    flagged = results.odds_ratios.loc[results.odds_ratios["flag"].fillna("") != "", "model"]
-    print(f"wrote {results.output_dir}/ (odds_ratios.csv, forest.png, forest.svg, "
-          "manifest.json, report.html)")
-    for model in flagged.unique():
-        print(f"note: model `{model}` was not estimated; see the flag column.", file=sys.stderr)
+    written = sorted(p.name for p in results.output_dir.iterdir())
+    print(f"wrote {results.output_dir}/ ({', '.join(written)})")
+    if results.odds_ratios is not None:
+        table = results.odds_ratios
+        for model in table.loc[table["flag"].fillna("") != "", "model"].unique():
+            print(f"note: model `{model}` was not estimated; see the flag column.",
+                  file=sys.stderr)
+    for note in results.manifest.get("notes", []):
+        print(f"note: {note}", file=sys.stderr)
     return 0
 
 

@@ -84,7 +84,7 @@ def is_categorical(series: pd.Series, column: str, spec: ModelSpec) -> bool:
     return column in spec.categorical or not numeric
 
 
-def _level_text(value: object) -> str:
+def level_text(value: object) -> str:
     if isinstance(value, float) and value.is_integer():
         return str(int(value))
     return str(value)
@@ -93,15 +93,15 @@ def _level_text(value: object) -> str:
 def _categories(series: pd.Series, rows: np.ndarray, column: str, spec: ModelSpec
                 ) -> tuple[np.ndarray, tuple[str, ...]]:
     """Category index per row (−1 outside `rows`) with levels ordered reference first."""
-    text = series.map(_level_text, na_action="ignore")
+    text = series.map(level_text, na_action="ignore")
     if isinstance(series.dtype, pd.CategoricalDtype):
-        order = [_level_text(c) for c in series.cat.categories]
+        order = [level_text(c) for c in series.cat.categories]
         present = set(text[rows])
         levels = [lv for lv in order if lv in present]
     else:
         values = series[rows].unique()
         numeric = pd.api.types.is_numeric_dtype(series)
-        levels = [_level_text(v) for v in sorted(values)] if numeric else sorted(map(str, values))
+        levels = [level_text(v) for v in sorted(values)] if numeric else sorted(map(str, values))
     reference = dict(spec.reference).get(column)
     if reference is not None:
         if reference not in levels:
@@ -167,23 +167,25 @@ def _exposure(frame: pd.DataFrame, spec: ModelSpec, rows: np.ndarray, weight: np
     return coding, index, values
 
 
-def _check_outcome(frame: pd.DataFrame, spec: ModelSpec, rows: np.ndarray) -> np.ndarray:
-    series = frame[spec.outcome]
+def binary_outcome(frame: pd.DataFrame, column: str, rows: np.ndarray, key: str,
+                   need_both: bool = True) -> np.ndarray:
+    """The 0/1 outcome as floats (0 outside `rows`); anything else is a `DataError` at `key`."""
+    series = frame[column]
     if not pd.api.types.is_numeric_dtype(series):
         found = ", ".join(map(repr, series[rows].unique()[:6]))
-        raise DataError(f"models.{spec.name}.outcome: column `{spec.outcome}` must be coded 0/1 "
-                        f"(1 = has the outcome); found text values {found}.")
+        raise DataError(f"{key}: column `{column}` must be coded 0/1 (1 = has the outcome); "
+                        f"found text values {found}.")
     y = series.to_numpy(dtype=float)
     found = np.unique(y[rows])
     if not np.isin(found, [0.0, 1.0]).all():
         shown = ", ".join(_fmt(v) for v in found[:8]) + (", …" if len(found) > 8 else "")
         hint = (" These look like survey answer codes (1 yes, 2 no): recode them to 1/0, or "
                 "map refusals and don't-knows to missing." if set(found) >= {1.0, 2.0} else "")
-        raise DataError(f"models.{spec.name}.outcome: column `{spec.outcome}` must be coded 0/1 "
-                        f"in the population; found the values {shown}.{hint}")
-    if len(found) < 2:
-        raise DataError(f"models.{spec.name}.outcome: column `{spec.outcome}` takes only the "
-                        f"value {_fmt(found[0]) if len(found) else 'none'} in the population; "
+        raise DataError(f"{key}: column `{column}` must be coded 0/1 in the population; found "
+                        f"the values {shown}.{hint}")
+    if need_both and len(found) < 2:
+        raise DataError(f"{key}: column `{column}` takes only the value "
+                        f"{_fmt(found[0]) if len(found) else 'none'} in the population; "
                         "a logistic model needs both 0 and 1.")
     return np.where(rows, y, 0.0)
 
@@ -207,7 +209,7 @@ def build(frame: pd.DataFrame, spec: ModelSpec, population: np.ndarray, weight: 
     if not rows.any():
         raise DataError(f"models.{spec.name}: no one in the population has all of "
                         f"{', '.join(spec.columns())} recorded.")
-    y = _check_outcome(frame, spec, rows)
+    y = binary_outcome(frame, spec.outcome, rows, f"models.{spec.name}.outcome")
     coding, level_index, _ = _exposure(frame, spec, rows, weight)
     blocks: list[np.ndarray] = [np.ones(len(frame))]
     columns = [Column(INTERCEPT, "", "intercept")]

@@ -11,7 +11,7 @@ from typing import Iterator
 import numpy as np
 import pandas as pd
 
-from cohortstone import sources
+from cohortstone import describe, prevalence, sources
 from cohortstone.config.load import load_yaml
 from cohortstone.config.spec import ModelSpec, Study, parse_study
 from cohortstone.derive import apply_derive
@@ -22,7 +22,7 @@ from cohortstone.models import logistic
 from cohortstone.models.fit import wald_test
 from cohortstone.models.summary import odds_ratio_rows
 from cohortstone.population import domain
-from cohortstone.report import forest, html, manifest
+from cohortstone.report import forest, html, manifest, prevalence_plot
 from cohortstone.report.files import staged_folder, write_text
 from cohortstone.report.tables import to_csv
 from cohortstone.sources.demo import LABEL as DEMO_LABEL
@@ -33,9 +33,12 @@ class Results:
     """What a run produced: the tidy tables, the manifest, and where the files went."""
 
     study: Study
-    odds_ratios: pd.DataFrame
+    odds_ratios: pd.DataFrame | None
     manifest: dict
     output_dir: Path | None = None
+    prevalence: pd.DataFrame | None = None
+    prevalence_trend: pd.DataFrame | None = None
+    table1: pd.DataFrame | None = None
 
 
 @dataclass
@@ -92,6 +95,10 @@ def _prepare(study: Study, clock: _Clock) -> Prepared:
         design = make_design(frame, study.design)
     with clock.stage("coding"):
         matrices = {m.name: build(frame, m, population, design.weight) for m in study.models}
+        if study.prevalence is not None:
+            prevalence.validate(frame, study.prevalence, population, design)
+        if study.describe is not None:
+            describe.validate(frame, study.describe)
     return Prepared(study, frame, population, flow, design, matrices)
 
 
@@ -127,6 +134,86 @@ def _source_text(study: Study) -> str:
     return f"table file {study.data.path.name}"
 
 
+@dataclass(frozen=True)
+class Estimates:
+    """The tidy result frames of one run (None where the config did not ask for them)."""
+
+    odds_ratios: pd.DataFrame | None
+    prevalence: pd.DataFrame | None      # full precision, suppressed rows included
+    prevalence_trend: pd.DataFrame | None
+    table1: pd.DataFrame | None
+    notes: tuple[str, ...] = ()
+    fit_seconds: dict = field(default_factory=dict)
+
+
+def estimate(prepared: Prepared, clock: _Clock) -> Estimates:
+    """Fit every model and compute the descriptive estimates the config asks for."""
+    study, design = prepared.study, prepared.design
+    fit_seconds, tables = {}, []
+    with clock.stage("models"):
+        for spec in study.models:
+            start = time.perf_counter()
+            tables.append(_fit_model(spec, prepared.matrices[spec.name], design))
+            fit_seconds[spec.name] = round(time.perf_counter() - start, 4)
+    odds_ratios = pd.concat(tables, ignore_index=True) if tables else None
+    prev = trend = table1 = None
+    notes: list[str] = []
+    if study.prevalence is not None:
+        with clock.stage("prevalence"):
+            prev, notes = prevalence.estimate(prepared.frame, study.prevalence,
+                                              prepared.population, design)
+            if study.prevalence.trend:
+                trend = prevalence.trend_test(prepared.frame, study.prevalence,
+                                              prepared.population, design)
+    if study.describe is not None:
+        with clock.stage("describe"):
+            table1 = describe.table(prepared.frame, study.describe, prepared.population, design)
+    return Estimates(odds_ratios, prev, trend, table1, tuple(notes), fit_seconds)
+
+
+def _info(study: Study, prepared: Prepared, estimates: Estimates, inputs: dict) -> dict:
+    """What the report needs to describe the run, beyond the result frames."""
+    dfs = set()
+    for frame in (estimates.odds_ratios, estimates.prevalence):
+        if frame is not None:
+            dfs |= {int(d) for d in frame["df"].dropna()}
+    return {
+        "invented": DEMO_LABEL if study.data.source == "demo" else None,
+        "source_text": _source_text(study),
+        "inputs": {Path(k).name: v for k, v in inputs.items()},
+        "flow": _flow_rows(prepared),
+        "outcomes": {m.name: m.outcome for m in study.models},
+        "codings": {n: m.codings for n, m in prepared.matrices.items()},
+        "df_text": ", ".join(map(str, sorted(dfs))) + " df" if dfs else "",
+        "versions": manifest.versions(),
+        "notes": list(estimates.notes),
+    }
+
+
+def _files(study: Study, estimates: Estimates, info: dict) -> dict[str, str | bytes]:
+    """Every output file's name and content; views of the result frames only."""
+    files: dict[str, str | bytes] = {}
+    figures = {}
+    if estimates.odds_ratios is not None:
+        png, svg = forest.render(estimates.odds_ratios)
+        files |= {"odds_ratios.csv": to_csv(estimates.odds_ratios), "forest.png": png,
+                  "forest.svg": svg}
+        figures["forest"] = svg
+    if estimates.prevalence is not None:
+        png, svg = prevalence_plot.render(estimates.prevalence,
+                                              study.prevalence.trend)  # type: ignore[union-attr]
+        files |= {"prevalence.csv": to_csv(prevalence.published(estimates.prevalence)),
+                  "prevalence_full.csv": to_csv(estimates.prevalence, full=True),
+                  "prevalence.png": png, "prevalence.svg": svg}
+        figures["prevalence"] = svg
+    if estimates.prevalence_trend is not None:
+        files["prevalence_trend.csv"] = to_csv(estimates.prevalence_trend)
+    if estimates.table1 is not None:
+        files["table1.csv"] = to_csv(estimates.table1)
+    files["report.html"] = html.page(study, estimates, figures, info)
+    return files
+
+
 def run(config: str | Path | dict | Study, out: str | Path | None = None,
         write: bool = True) -> Results:
     """Whole pipeline; writes `<out>/<name>/` atomically unless `write` is False."""
@@ -135,27 +222,11 @@ def run(config: str | Path | dict | Study, out: str | Path | None = None,
     with clock.stage("config"):
         study = study_from(config)
     prepared = prepare(study, clock)
-    fit_seconds, tables = {}, []
-    with clock.stage("models"):
-        for spec in study.models:
-            start = time.perf_counter()
-            tables.append(_fit_model(spec, prepared.matrices[spec.name], prepared.design))
-            fit_seconds[spec.name] = round(time.perf_counter() - start, 4)
-    odds_ratios = pd.concat(tables, ignore_index=True)
+    estimates = estimate(prepared, clock)
     inputs = {str(p): manifest.sha256(p) for p in sources.input_files(study.data)}
     if study.config_file:
         inputs = {study.config_file: manifest.sha256(Path(study.config_file)), **inputs}
-    dfs = sorted({int(d) for d in odds_ratios["df"].dropna()})
-    info = {
-        "invented": DEMO_LABEL if study.data.source == "demo" else None,
-        "source_text": _source_text(study),
-        "inputs": {Path(k).name: v for k, v in inputs.items()},
-        "flow": _flow_rows(prepared),
-        "outcomes": {m.name: m.outcome for m in study.models},
-        "codings": {n: m.codings for n, m in prepared.matrices.items()},
-        "df_text": ", ".join(map(str, dfs)) + " df" if dfs else "",
-        "versions": manifest.versions(),
-    }
+    info = _info(study, prepared, estimates, inputs)
     record = {
         "name": study.name, "started": started, "config": study.raw,
         "inputs_sha256": inputs, "versions": info["versions"],
@@ -164,22 +235,25 @@ def run(config: str | Path | dict | Study, out: str | Path | None = None,
                  "models": {n: {"analysed": int(m.in_model.sum()), "left_domain": m.dropped}
                             for n, m in prepared.matrices.items()}},
         "codings": info["codings"],
-        "seconds": {"stages": clock.stages, "model_fits": fit_seconds},
+        "notes": info["notes"],
+        "seconds": {"stages": clock.stages, "model_fits": estimates.fit_seconds},
     }
     target = None
     if write:
         with clock.stage("write"):
-            png, svg = forest.render(odds_ratios)
-            page = html.page(study, odds_ratios, svg, info)
+            files = _files(study, estimates, info)
             target = Path(out if out is not None else study.output) / study.name
             with staged_folder(target) as folder:
-                write_text(folder, "odds_ratios.csv", to_csv(odds_ratios))
-                (folder / "forest.png").write_bytes(png)
-                write_text(folder, "forest.svg", svg)
-                write_text(folder, "report.html", page)
+                for name, content in files.items():
+                    if isinstance(content, bytes):
+                        (folder / name).write_bytes(content)
+                    else:
+                        write_text(folder, name, content)
                 record["seconds"]["stages"] = dict(clock.stages)
                 write_text(folder, "manifest.json", manifest.to_json(record))
-    return Results(study=study, odds_ratios=odds_ratios, manifest=record, output_dir=target)
+    return Results(study=study, odds_ratios=estimates.odds_ratios,
+                   prevalence=estimates.prevalence, prevalence_trend=estimates.prevalence_trend,
+                   table1=estimates.table1, manifest=record, output_dir=target)
 
 
 def check(config: str | Path | dict | Study) -> str:
@@ -198,4 +272,8 @@ def check(config: str | Path | dict | Study) -> str:
         left = ", ".join(f"{v} {k}" for k, v in matrix.dropped.items()) or "none"
         lines.append(f"model `{name}`: {int(matrix.in_model.sum())} rows analysed, "
                      f"{int(matrix.y[matrix.in_model].sum())} cases; left the domain: {left}")
+    if study.prevalence is not None:
+        lines.append(f"prevalence of `{study.prevalence.outcome}`: columns and codes valid")
+    if study.describe is not None:
+        lines.append(f"describe: {len(study.describe.columns)} columns found")
     return "\n".join(lines)

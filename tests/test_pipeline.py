@@ -11,7 +11,9 @@ import cohortstone
 from cohortstone.report import forest
 
 DEMO = Path(__file__).parents[1] / "configs" / "demo.yaml"
-OUTPUTS = ["forest.png", "forest.svg", "manifest.json", "odds_ratios.csv", "report.html"]
+OUTPUTS = ["forest.png", "forest.svg", "manifest.json", "odds_ratios.csv", "prevalence.csv",
+           "prevalence.png", "prevalence.svg", "prevalence_full.csv", "report.html",
+           "table1.csv"]
 
 
 @pytest.fixture(scope="module")
@@ -75,8 +77,8 @@ def test_the_report_is_self_contained_and_says_what_it_is(demo_run):
     for external in ['src="http', 'href="http', "url(http", "@import", "<script", "<link"]:
         assert external not in page, f"the page must not load anything: {external}"
     assert "Invented data" in page and "Nothing here is medical advice" in page
-    for heading in ["Data", "Who was analysed", "Odds ratios", "Forest plot", "Methods",
-                    "Cautions"]:
+    for heading in ["Data", "Who was analysed", "Table 1", "Prevalence", "Odds ratios",
+                    "Forest plot", "Methods", "Cautions"]:
         assert f"<h2>{heading}</h2>" in page
     assert "Taylor-series linearisation" in page and "20 df" in page
 
@@ -84,7 +86,8 @@ def test_the_report_is_self_contained_and_says_what_it_is(demo_run):
 def test_a_rerun_gives_byte_identical_tables_and_figures(demo_run, tmp_path):
     _, out = demo_run
     cohortstone.run(DEMO, out=tmp_path)
-    for name in ["odds_ratios.csv", "forest.svg", "forest.png", "report.html"]:
+    for name in ["odds_ratios.csv", "forest.svg", "forest.png", "report.html", "prevalence.csv",
+                 "prevalence_full.csv", "prevalence.svg", "prevalence.png", "table1.csv"]:
         assert (tmp_path / "demo" / name).read_bytes() == (out / "demo" / name).read_bytes(), name
 
 

@@ -14,6 +14,7 @@ from typing import Any
 from cohortstone.config.conditions import Condition, ConditionSyntaxError, parse_condition
 from cohortstone.config.load import RawConfig, dotted
 from cohortstone.errors import ConfigError
+from cohortstone.standard_population import BUILT_IN, Standard, built_in
 
 NAME_PATTERN = re.compile(r"^[a-z0-9_-]+$")
 SOURCES = ("table", "demo")  # nhanes: planned (see the README)
@@ -24,7 +25,6 @@ PLANNED = {
     "use `source: table` with a file you prepared, or `source: demo`",
     ("type", "recurrence"): "`recurrence` models are planned but not available in this "
     "version; use `type: logistic`",
-    ("key", "prevalence"): "the `prevalence` block is planned but not available in this version",
 }
 SINGLE_CLUSTER_RULES = ("error", "overall_mean")
 
@@ -74,6 +74,25 @@ class ModelSpec:
 
 
 @dataclass(frozen=True)
+class PrevalenceSpec:
+    """Design-based prevalence of a 0/1 outcome, overall and by groups."""
+
+    outcome: str
+    by: tuple[str, ...] = ()
+    standardize: Standard | None = None
+    trend: str | None = None   # a column of ordered survey cycles; adds a test for linear trend
+
+
+@dataclass(frozen=True)
+class DescribeSpec:
+    """The weighted descriptive table (`table1.csv`) of the analysis population."""
+
+    columns: tuple[str, ...]
+    by: str | None = None
+    categorical: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class Study:
     """A whole validated config."""
 
@@ -85,6 +104,8 @@ class Study:
     population: tuple[Condition, ...] = ()
     design: DesignSpec | None = None
     models: tuple[ModelSpec, ...] = ()
+    prevalence: PrevalenceSpec | None = None
+    describe: DescribeSpec | None = None
     config_file: str | None = None
     raw: Any = field(default=None, compare=False, repr=False)
 
@@ -331,12 +352,62 @@ def _model(c: _Checker, path: tuple, raw: Any) -> ModelSpec | None:
                      categorical=categorical, reference=tuple(reference))
 
 
+def _standard(c: _Checker, path: tuple, raw: Any) -> Standard | None:
+    if isinstance(raw, str):
+        return built_in(raw) if c.choice(path, raw, tuple(BUILT_IN), "standard") else None
+    if not c.mapping(path, raw, ("cuts", "weights"), ("column",)):
+        return None
+    column = c.text(path + ("column",), raw.get("column", "age_years"), what="a column name")
+    cuts = c.cuts(path + ("cuts",), raw["cuts"])
+    weights = raw["weights"]
+    if not isinstance(weights, list) or not weights:
+        c.fail(path + ("weights",), f"expected a list of positive numbers, found {_kind(weights)}.")
+        return None
+    numbers = [c.number(path + ("weights", i), w, positive=True) for i, w in enumerate(weights)]
+    if cuts is None or column is None or any(n is None for n in numbers):
+        return None
+    if len(numbers) != len(cuts):
+        c.fail(path + ("weights",), f"expected one weight per age group ({len(cuts)} groups "
+               f"from {len(cuts)} cut points, the last open-ended), found {len(numbers)}.")
+        return None
+    total = sum(numbers)  # type: ignore[arg-type]
+    return Standard(name="custom", column=column, cuts=cuts,
+                    weights=tuple(n / total for n in numbers))  # type: ignore[operator]
+
+
+def _prevalence(c: _Checker, raw: Any) -> PrevalenceSpec | None:
+    path = ("prevalence",)
+    if not c.mapping(path, raw, ("outcome",), ("by", "standardize", "trend")):
+        return None
+    outcome = c.text(path + ("outcome",), raw.get("outcome"), what="a column name")
+    by = c.names(path + ("by",), raw.get("by", []))
+    standard = _standard(c, path + ("standardize",), raw["standardize"]) \
+        if "standardize" in raw else None
+    trend = c.text(path + ("trend",), raw["trend"], what="a column name") \
+        if "trend" in raw else None
+    if outcome is None:
+        return None
+    return PrevalenceSpec(outcome=outcome, by=by, standardize=standard, trend=trend)
+
+
+def _describe(c: _Checker, raw: Any) -> DescribeSpec | None:
+    path = ("describe",)
+    if not c.mapping(path, raw, ("columns",), ("by", "categorical")):
+        return None
+    columns = c.names(path + ("columns",), raw.get("columns"))
+    by = c.text(path + ("by",), raw["by"], what="a column name") if "by" in raw else None
+    categorical = c.names(path + ("categorical",), raw.get("categorical", []))
+    if not columns:
+        return None
+    return DescribeSpec(columns=columns, by=by, categorical=categorical)
+
+
 def parse_study(raw: RawConfig) -> Study:
     """Validate the whole document in one pass; raise one `ConfigError` listing every fault."""
     c = _Checker(raw)
     doc = raw.data
-    if not c.mapping((), doc, ("name", "data", "models"),
-                     ("title", "output", "derive", "population", "design")):
+    if not c.mapping((), doc, ("name", "data"), ("title", "output", "derive", "population",
+                                                 "design", "models", "prevalence", "describe")):
         raise ConfigError(c.problems, file=raw.file)
     name = c.text(("name",), doc.get("name"), NAME_PATTERN,
                   "an output name of lower-case letters, digits, - or _ (it names a folder "
@@ -364,8 +435,12 @@ def parse_study(raw: RawConfig) -> Study:
             if model.name in seen:
                 c.fail(("models", i, "name"), f"the model name `{model.name}` is used twice.")
             seen.add(model.name)
+    prevalence = _prevalence(c, doc["prevalence"]) if "prevalence" in doc else None
+    describe = _describe(c, doc["describe"]) if "describe" in doc else None
+    if isinstance(doc, dict) and not any(k in doc for k in ("models", "prevalence", "describe")):
+        c.fail((), "nothing to estimate: add `models`, `prevalence` or `describe`.")
     if c.problems:
         raise ConfigError(c.problems, file=raw.file)
     return Study(name=name, title=str(title), output=Path(output), data=data,  # type: ignore
                  derive=derive, population=population, design=design, models=tuple(models),
-                 config_file=raw.file, raw=doc)
+                 prevalence=prevalence, describe=describe, config_file=raw.file, raw=doc)

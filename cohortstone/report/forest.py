@@ -1,23 +1,15 @@
 """Forest plot of the exposure odds ratios of every model (log axis, line at 1)."""
 from __future__ import annotations
 
-import io
+import matplotlib.pyplot as plt
+import numpy as np
+import pandas as pd
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
+from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter
 
-import matplotlib
-
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
-from matplotlib.axes import Axes  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter  # noqa: E402
-
-from cohortstone.report.tables import interval_text  # noqa: E402
-
-STYLE = {"font.family": "DejaVu Sans", "font.size": 9, "svg.hashsalt": "cohortstone",
-         "svg.fonttype": "path"}
-INK, GUIDE = "#1b1b1b", "#8a8a8a"
+from cohortstone.report.figures import GUIDE, INK, STYLE, export
+from cohortstone.report.tables import interval_text
 
 
 def _labels(rows: pd.DataFrame) -> list[str]:
@@ -78,11 +70,5 @@ def figure(table: pd.DataFrame) -> Figure:
 
 
 def render(table: pd.DataFrame) -> tuple[bytes, str]:
-    """PNG bytes and SVG text, with no dates or software stamps inside (reproducible files)."""
-    fig = figure(table)
-    with plt.rc_context(STYLE):
-        png, svg = io.BytesIO(), io.StringIO()
-        fig.savefig(png, format="png", dpi=150, metadata={"Software": None})
-        fig.savefig(svg, format="svg", metadata={"Date": None, "Creator": None})
-    plt.close(fig)
-    return png.getvalue(), svg.getvalue()
+    """PNG bytes and SVG text of the forest plot (reproducible files)."""
+    return export(figure(table))

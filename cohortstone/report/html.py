@@ -7,7 +7,8 @@ from typing import Any
 import pandas as pd
 
 from cohortstone.config.spec import Study
-from cohortstone.exposure import Coding
+from cohortstone.prevalence import published
+from cohortstone.report.methods import methods_text
 from cohortstone.report.tables import interval_text, p_text
 
 CSS = """
@@ -40,57 +41,6 @@ def _e(value: Any) -> str:
     return html.escape(str(value))
 
 
-def coding_text(coding: Coding) -> str:
-    if coding.kind == "continuous":
-        return f"`{coding.column}` as a continuous term (odds ratio per {coding.per:g} units)"
-    levels = ", ".join(coding.levels[1:])
-    what = {"cuts": "groups by cut points", "quantiles": "weighted quantile groups",
-            "categorical": "categories"}[coding.kind]
-    return f"`{coding.column}` in {what} {levels} against the reference {coding.reference}"
-
-
-def methods_text(study: Study, info: dict) -> str:
-    """One paragraph describing exactly what was done, generated from the config and the run."""
-    d = study.design
-    parts = []
-    if d is None:
-        parts.append("Odds ratios were estimated by unweighted logistic regression (maximum "
-                     "likelihood) with model-based standard errors; 95% confidence intervals "
-                     "use the normal distribution.")
-    else:
-        pieces = [f"weighted by `{d.weight}`" if d.weight else "without weights"]
-        design = []
-        if d.strata:
-            design.append(f"strata `{d.strata}`")
-        design.append(f"clusters `{d.cluster}`" if d.cluster else "each person as a cluster")
-        parts.append(
-            f"Odds ratios were estimated by logistic regression {pieces[0]}, with variance by "
-            f"Taylor-series linearisation ({', '.join(design)}; clusters treated as sampled "
-            "with replacement within strata). 95% confidence intervals and p-values use the t "
-            "distribution with design degrees of freedom: clusters minus strata, counting only "
-            "those holding members of the model's analysis population "
-            f"({info['df_text']}).")
-        if d.single_cluster_strata == "overall_mean":
-            parts.append("Strata holding a single cluster were centred on the mean of all "
-                         "cluster totals.")
-    if study.population:
-        conds = "; ".join(f"`{c.text}`" for c in study.population)
-        parts.append(f"The analysis population was {conds}; it was applied by giving everyone "
-                     "else zero weight, keeping every record for variance estimation.")
-    parts.append("People missing the outcome, the exposure or a covariate of a model left that "
-                 "model's population (complete-case analysis; counts are in the flow table).")
-    for model, codings in info["codings"].items():
-        parts.append(f"Model {model}: " + "; ".join(coding_text(c) for c in codings) + ".")
-    parts.append("For grouped exposures, the p for trend treats each group's weighted median "
-                 "as a score, and the joint test of the groups is an adjusted Wald F test "
-                 "(Korn & Graubard, 1990).")
-    versions = info["versions"]
-    parts.append(f"Software: cohortstone {versions.get('cohortstone')}, Python "
-                 f"{versions.get('python')}, numpy {versions.get('numpy')}, pandas "
-                 f"{versions.get('pandas')}, scipy {versions.get('scipy')}.")
-    return " ".join(parts)
-
-
 def _table(frame: pd.DataFrame, numeric: set[str]) -> str:
     head = "".join(f'<th class="{"num" if c in numeric else ""}">{_e(c)}</th>'
                    for c in frame.columns)
@@ -116,25 +66,13 @@ def _ratio_view(rows: pd.DataFrame) -> pd.DataFrame:
     return view
 
 
-def page(study: Study, odds_ratios: pd.DataFrame, forest_svg: str, info: dict) -> str:
-    title = study.title or study.name
-    out = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
-           f"<title>{_e(title)}</title><style>{CSS}</style></head><body>",
-           f"<h1>{_e(title)}</h1>",
-           f"<p class=\"note\">Analysis <code>{_e(study.name)}</code> — odds ratios of a binary "
-           "outcome by exposure, adjusted for the listed covariates.</p>"]
-    if info.get("invented"):
-        out.append(f"<div class=\"banner\"><strong>Invented data.</strong> This report runs on "
-                   f"{_e(info['invented'])}. Its numbers show how the tool works; they are not "
-                   "findings about any real population.</div>")
-    out.append("<h2>Data</h2>")
-    out.append(f"<p>Source: {_e(info['source_text'])}.</p>")
-    if info["inputs"]:
-        out.append(_table(pd.DataFrame([{"File": k, "SHA-256": v}
-                                        for k, v in info["inputs"].items()]), set()))
-    out.append("<h2>Who was analysed</h2>")
-    out.append(_table(pd.DataFrame(info["flow"]), {"People"}))
-    out.append("<h2>Odds ratios</h2>")
+def _figure(svg: str, caption: str) -> str:
+    return (f"<figure>{_strip_xml_header(svg)}<figcaption class=\"note\">{_e(caption)}"
+            "</figcaption></figure>")
+
+
+def _odds_ratio_section(odds_ratios: pd.DataFrame, svg: str, info: dict) -> list[str]:
+    out = ["<h2>Odds ratios</h2>"]
     for model, rows in odds_ratios.groupby("model", sort=False):
         first = rows.iloc[0]
         df_text = "normal distribution" if pd.isna(first["df"]) else f"t with {int(first['df'])} df"
@@ -150,10 +88,110 @@ def page(study: Study, odds_ratios: pd.DataFrame, forest_svg: str, info: dict) -
         if isinstance(first["flag"], str) and first["flag"]:
             out.append(f"<p class=\"flag\">Not estimated: {_e(first['flag'])}.</p>")
         out.append(_table(_ratio_view(rows), {"n", "Cases", "Odds ratio (95% CI)", "p"}))
-    out.append("<h2>Forest plot</h2><figure>" + _strip_xml_header(forest_svg)
-               + "<figcaption class=\"note\">Exposure odds ratios with 95% confidence intervals "
-               "(log scale; dashed line at 1).</figcaption></figure>")
+    out.append("<h2>Forest plot</h2>" + _figure(svg, "Exposure odds ratios with 95% confidence "
+                                                 "intervals (log scale; dashed line at 1)."))
+    return out
+
+
+def _percent(value: float, lower: float, upper: float) -> str:
+    if pd.isna(value):
+        return ""
+    return f"{100 * value:.1f} ({100 * lower:.1f}\u2013{100 * upper:.1f})"
+
+
+def _prevalence_view(rows: pd.DataFrame) -> pd.DataFrame:
+    shown = published(rows)
+    view = pd.DataFrame({
+        "Group": ["everyone" if b == "all" else f"{b}: {g}"
+                  for b, g in zip(shown["by"], shown["group"])],
+        "n": shown["n"].astype(int),
+        "Prevalence, % (95% CI)": [_percent(p, lo, hi) for p, lo, hi in
+                                   zip(shown["prevalence"], shown["ci_lower"], shown["ci_upper"])],
+        "df": shown["df"].map(lambda d: "" if pd.isna(d) else str(int(d))),
+        "Reliability": [w if not r else f"{w}: {r}" for w, r in
+                        zip(shown["reliability"], shown["reliability_reason"])],
+    })
+    if "adjusted_prevalence" in shown.columns:
+        view.insert(3, "Age-standardized, % (95% CI)", [
+            _percent(p, lo, hi) or ("\u2014" if r.startswith("not standardized") else "")
+            for p, lo, hi, r in
+            zip(shown["adjusted_prevalence"], shown["adjusted_ci_lower"],
+                shown["adjusted_ci_upper"], shown["adjusted_reliability_reason"])])
+    return view
+
+
+def _prevalence_section(study: Study, estimates: Any, svg: str) -> list[str]:
+    spec = study.prevalence
+    out = ["<h2>Prevalence</h2>",
+           f"<p class=\"note\">Outcome <code>{_e(spec.outcome)}</code>. Estimates marked "
+           "<em>suppress</em> are left blank here and kept in <code>prevalence_full.csv</code>; "
+           "<em>review</em> marks estimates to read with care (NCHS Data Presentation Standards "
+           "for Proportions, 2017).</p>",
+           _table(_prevalence_view(estimates.prevalence),
+                  {"n", "Prevalence, % (95% CI)", "Age-standardized, % (95% CI)", "df"}),
+           "<p class=\"note\">\u2014 marks a group that does not span every standard age "
+           "group, so it is not age-standardized.</p>" if spec.standardize else "",
+           _figure(svg, "Prevalence with 95% Korn\u2013Graubard intervals; hollow markers need "
+                   "review, suppressed estimates are not drawn.")]
+    trend = estimates.prevalence_trend
+    if trend is not None:
+        r = trend.iloc[0]
+        adjusted = f", adjusted for {r['adjusted_for']}" if r["adjusted_for"] else ""
+        out.append(f"<p>Linear trend across {_e(r['by'])} ({_e(r['levels'])}): odds ratio per "
+                   f"step {_e(interval_text(r['odds_ratio_per_step'], r['ci_lower'], r['ci_upper']))}, "
+                   f"p {_e(p_text(r['p_value']))} (t with {int(r['df'])} df{_e(adjusted)}).</p>")
+    return out
+
+
+def _table1_view(table1: pd.DataFrame) -> pd.DataFrame:
+    rows = table1.copy()
+    rows["cell"] = [
+        "" if pd.isna(e) else (f"{e:.1f}% ({s:.1f})" if stat == "percent" else f"{e:.2f} ({s:.2f})")
+        + f" [n={n}]" for e, s, stat, n in zip(rows["estimate"], rows["se"], rows["statistic"],
+                                                 rows["n"])]
+    rows["heading"] = ["Everyone" if b == "all" else f"{b} = {g}"
+                       for b, g in zip(rows["by"], rows["group"])]
+    rows["Characteristic"] = [c if not lv else f"{c}: {lv}" for c, lv in
+                              zip(rows["column"], rows["level"])]
+    order = list(dict.fromkeys(rows["heading"]))
+    wide = rows.pivot_table(index="Characteristic", columns="heading", values="cell",
+                            aggfunc="first", sort=False).reindex(columns=order)
+    missing = rows.groupby("column", sort=False)["missing"].first()
+    wide["Missing (everyone)"] = [missing[c.split(": ")[0]] for c in wide.index]
+    return wide.reset_index().fillna("")
+
+
+def page(study: Study, estimates: Any, figures: dict, info: dict) -> str:
+    """The whole report; sections for results the config did not ask for are absent."""
+    title = study.title or study.name
+    out = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
+           f"<title>{_e(title)}</title><style>{CSS}</style></head><body>",
+           f"<h1>{_e(title)}</h1>",
+           f"<p class=\"note\">Analysis <code>{_e(study.name)}</code>: design-based estimates "
+           "from one configuration file.</p>"]
+    if info.get("invented"):
+        out.append(f"<div class=\"banner\"><strong>Invented data.</strong> This report runs on "
+                   f"{_e(info['invented'])}. Its numbers show how the tool works; they are not "
+                   "findings about any real population.</div>")
+    out.append("<h2>Data</h2>")
+    out.append(f"<p>Source: {_e(info['source_text'])}.</p>")
+    if info["inputs"]:
+        out.append(_table(pd.DataFrame([{"File": k, "SHA-256": v}
+                                        for k, v in info["inputs"].items()]), set()))
+    out.append("<h2>Who was analysed</h2>")
+    out.append(_table(pd.DataFrame(info["flow"]), {"People"}))
+    if estimates.table1 is not None:
+        out.append("<h2>Table 1</h2><p class=\"note\">Weighted means (SE) and percentages (SE) "
+                   "with unweighted n.</p>")
+        out.append(_table(_table1_view(estimates.table1), set()))
+    if estimates.prevalence is not None:
+        out += _prevalence_section(study, estimates, figures["prevalence"])
+    if estimates.odds_ratios is not None:
+        out += _odds_ratio_section(estimates.odds_ratios, figures["forest"], info)
     out.append(f"<h2>Methods</h2><p>{_e(methods_text(study, info))}</p>")
+    if info.get("notes"):
+        out.append("<ul class=\"note\">" + "".join(f"<li>{_e(n)}</li>" for n in info["notes"])
+                   + "</ul>")
     out.append("<h2>Cautions</h2><ul>" + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS)
                + "</ul>")
     out.append("</body></html>\n")

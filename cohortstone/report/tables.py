@@ -4,9 +4,11 @@ from __future__ import annotations
 import pandas as pd
 
 
-def to_csv(frame: pd.DataFrame) -> str:
-    """Six significant digits, empty cells for missing values, Unix newlines."""
-    return frame.to_csv(index=False, float_format="%.6g", lineterminator="\n")
+def to_csv(frame: pd.DataFrame, full: bool = False) -> str:
+    """Six significant digits (or every digit with `full`), empty cells for missing values,
+    Unix newlines."""
+    return frame.to_csv(index=False, float_format="%.17g" if full else "%.6g",
+                        lineterminator="\n")
 
 
 def interval_text(value: float, lower: float, upper: float) -> str:
