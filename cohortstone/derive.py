@@ -15,7 +15,10 @@ def group_labels(cuts: tuple[float, ...]) -> list[str]:
     whole = all(float(c).is_integer() for c in cuts)
     labels = []
     for lo, hi in zip(cuts, cuts[1:]):
-        labels.append(f"{fmt(lo)}-{fmt(hi - 1)}" if whole else f"{fmt(lo)}-<{fmt(hi)}")
+        if whole:
+            labels.append(fmt(lo) if hi - lo == 1 else f"{fmt(lo)}-{fmt(hi - 1)}")
+        else:
+            labels.append(f"{fmt(lo)}-<{fmt(hi)}")
     labels.append(f"{fmt(cuts[-1])}+")
     return labels
 
