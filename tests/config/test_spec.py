@@ -101,3 +101,20 @@ def test_yaml_tags_that_would_build_objects_are_refused(tmp_path):
     found = problems("name: !!python/object/apply:os.system ['ls']\n", tmp_path)
     assert "line 1: the YAML tag `tag:yaml.org,2002:python/object/apply:os.system` is not " \
         "allowed" in found[0]
+
+
+@pytest.mark.parametrize("block, message", [
+    ("{outcome: stone_ever, standardize: adult4}", "expected one of adult3, all_ages11"),
+    ("{outcome: stone_ever, standardize: {cuts: [20, 40], weights: [1]}}",
+     "expected one weight per age group (2 groups"),
+    ("{outcome: stone_ever, by: sex, standardise: adult3}", "Did you mean `standardize`?"),
+    ("{by: [sex]}", "the required key `outcome` is missing"),
+])
+def test_prevalence_block_mistakes_are_named(block, message, tmp_path):
+    found = problems(f"name: a\ndata: {{source: demo}}\nprevalence: {block}\n", tmp_path)
+    assert any(message in p and "(line 3)" in p for p in found), found
+
+
+def test_a_config_must_ask_for_something(tmp_path):
+    found = problems("name: a\ndata: {source: demo}\n", tmp_path)
+    assert any("nothing to estimate" in p for p in found)
