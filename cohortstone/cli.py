@@ -21,6 +21,8 @@ def _parser() -> argparse.ArgumentParser:
     run = commands.add_parser("run", help="run the whole analysis and write the report folder")
     run.add_argument("config", help="the study's YAML file")
     run.add_argument("--out", help="output folder (default: the config's `output`, or reports)")
+    run.add_argument("--compare", metavar="PREVIOUS_REPORT_DIR",
+                     help="also list what changed since an earlier run's report folder")
     run.add_argument("--debug", action="store_true", help="show a traceback on errors")
     check = commands.add_parser("check", help="validate config and data without fitting")
     check.add_argument("config", help="the study's YAML file")
@@ -37,7 +39,7 @@ def main(argv: list[str] | None = None) -> int:
             if args.command == "check":
                 print(pipeline.check(args.config))
                 return 0
-            results = pipeline.run(args.config, out=args.out)
+            results = pipeline.run(args.config, out=args.out, compare=args.compare)
     except CohortstoneError as exc:
         if args.debug:
             raise

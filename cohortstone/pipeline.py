@@ -22,7 +22,8 @@ from cohortstone.models import logistic
 from cohortstone.models.fit import wald_test
 from cohortstone.models.summary import odds_ratio_rows
 from cohortstone.population import domain
-from cohortstone.report import forest, html, manifest, prevalence_plot
+from cohortstone.report import cells, forest, html, manifest, markdown, prevalence_plot
+from cohortstone.report import compare as report_compare
 from cohortstone.report.files import staged_folder, write_text
 from cohortstone.report.tables import to_csv
 from cohortstone.sources.demo import LABEL as DEMO_LABEL
@@ -39,6 +40,7 @@ class Results:
     prevalence: pd.DataFrame | None = None
     prevalence_trend: pd.DataFrame | None = None
     table1: pd.DataFrame | None = None
+    changes: pd.DataFrame | None = None
 
 
 @dataclass
@@ -190,33 +192,45 @@ def _info(study: Study, prepared: Prepared, estimates: Estimates, inputs: dict) 
     }
 
 
-def _files(study: Study, estimates: Estimates, info: dict) -> dict[str, str | bytes]:
-    """Every output file's name and content; views of the result frames only."""
+def _files(study: Study, estimates: Estimates, info: dict,
+           changes: pd.DataFrame | None) -> dict[str, str | bytes]:
+    """Every output file's name and content; views of the result frames only. Published
+    tables withhold small counts; `prevalence_full.csv` keeps everything for the analyst."""
+    threshold = study.report.suppress_counts_below
+    counts = cells.COUNT_COLUMNS
     files: dict[str, str | bytes] = {}
     figures = {}
     if estimates.odds_ratios is not None:
         png, svg = forest.render(estimates.odds_ratios)
-        files |= {"odds_ratios.csv": to_csv(estimates.odds_ratios), "forest.png": png,
-                  "forest.svg": svg}
+        files |= {"odds_ratios.csv": to_csv(cells.protect(estimates.odds_ratios,
+                                                          counts["odds_ratios"], threshold)),
+                  "forest.png": png, "forest.svg": svg}
         figures["forest"] = svg
     if estimates.prevalence is not None:
         png, svg = prevalence_plot.render(estimates.prevalence,
-                                              study.prevalence.trend)  # type: ignore[union-attr]
-        files |= {"prevalence.csv": to_csv(prevalence.published(estimates.prevalence)),
+                                          study.prevalence.trend)  # type: ignore[union-attr]
+        shown = cells.protect(prevalence.published(estimates.prevalence), counts["prevalence"],
+                              threshold)
+        files |= {"prevalence.csv": to_csv(shown),
                   "prevalence_full.csv": to_csv(estimates.prevalence, full=True),
                   "prevalence.png": png, "prevalence.svg": svg}
         figures["prevalence"] = svg
     if estimates.prevalence_trend is not None:
         files["prevalence_trend.csv"] = to_csv(estimates.prevalence_trend)
     if estimates.table1 is not None:
-        files["table1.csv"] = to_csv(estimates.table1)
-    files["report.html"] = html.page(study, estimates, figures, info)
+        files["table1.csv"] = to_csv(cells.protect(estimates.table1, counts["table1"],
+                                                   threshold))
+    if changes is not None:
+        files["changes.csv"] = to_csv(changes)
+    files["tables.md"] = markdown.document(study, estimates, info)
+    files["report.html"] = html.page(study, estimates, figures, info | {"changes": changes})
     return files
 
 
 def run(config: str | Path | dict | Study, out: str | Path | None = None,
-        write: bool = True) -> Results:
-    """Whole pipeline; writes `<out>/<name>/` atomically unless `write` is False."""
+        write: bool = True, compare: str | Path | None = None) -> Results:
+    """Whole pipeline; writes `<out>/<name>/` atomically unless `write` is False. With
+    `compare`, the estimates are also set against those of a previous report folder."""
     started = datetime.now(timezone.utc).isoformat(timespec="seconds")
     clock = _Clock()
     with clock.stage("config"):
@@ -238,10 +252,16 @@ def run(config: str | Path | dict | Study, out: str | Path | None = None,
         "notes": info["notes"],
         "seconds": {"stages": clock.stages, "model_fits": estimates.fit_seconds},
     }
+    changes = None
+    if compare is not None:
+        with clock.stage("compare"):
+            changes = report_compare.changes(Path(compare), {
+                "odds_ratios": estimates.odds_ratios, "prevalence": estimates.prevalence,
+                "table1": estimates.table1})
     target = None
     if write:
         with clock.stage("write"):
-            files = _files(study, estimates, info)
+            files = _files(study, estimates, info, changes)
             target = Path(out if out is not None else study.output) / study.name
             with staged_folder(target) as folder:
                 for name, content in files.items():
@@ -253,7 +273,8 @@ def run(config: str | Path | dict | Study, out: str | Path | None = None,
                 write_text(folder, "manifest.json", manifest.to_json(record))
     return Results(study=study, odds_ratios=estimates.odds_ratios,
                    prevalence=estimates.prevalence, prevalence_trend=estimates.prevalence_trend,
-                   table1=estimates.table1, manifest=record, output_dir=target)
+                   table1=estimates.table1, changes=changes, manifest=record,
+                   output_dir=target)
 
 
 def check(config: str | Path | dict | Study) -> str:

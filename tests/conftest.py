@@ -12,6 +12,8 @@ import subprocess
 import pytest
 
 R_MISSING = "R's survey package not found: the reference checks against R did NOT run"
+BROWSER_MISSING = "Chromium not found: the report was NOT rendered in a browser"
+LOUD_SKIPS = (R_MISSING, BROWSER_MISSING)
 
 
 @pytest.fixture(scope="session")
@@ -33,12 +35,23 @@ def rscript() -> str:
     return path
 
 
+@pytest.fixture(scope="session")
+def chromium() -> str:
+    """Path of a headless-capable Chromium (Debian's `chromium`); otherwise skip loudly."""
+    for name in ("chromium", "chromium-browser"):
+        path = shutil.which(name)
+        if path is not None:
+            return path
+    pytest.skip(f"{BROWSER_MISSING} (no `chromium` on PATH)")
+
+
 def pytest_terminal_summary(terminalreporter, exitstatus, config):
-    """Repeat the missing-R sentence at the end of the run whenever a check was skipped for it."""
-    skipped = [rep for rep in terminalreporter.stats.get("skipped", [])
-               if R_MISSING in str(getattr(rep, "longrepr", ""))]
-    if skipped:
-        terminalreporter.write_sep("!", R_MISSING, red=True, bold=True)
-        terminalreporter.write_line(
-            f"{len(skipped)} test(s) comparing cohortstone with R were skipped; install R and "
-            "its `survey` package to run them.", red=True, bold=True)
+    """Repeat each loud-skip sentence at the end of the run whenever a check was skipped."""
+    for sentence in LOUD_SKIPS:
+        skipped = [rep for rep in terminalreporter.stats.get("skipped", [])
+                   if sentence in str(getattr(rep, "longrepr", ""))]
+        if skipped:
+            terminalreporter.write_sep("!", sentence, red=True, bold=True)
+            terminalreporter.write_line(
+                f"{len(skipped)} test(s) were skipped for this; `.ci/run` installs what they "
+                "need.", red=True, bold=True)

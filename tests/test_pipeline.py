@@ -13,7 +13,7 @@ from cohortstone.report import forest
 DEMO = Path(__file__).parents[1] / "configs" / "demo.yaml"
 OUTPUTS = ["forest.png", "forest.svg", "manifest.json", "odds_ratios.csv", "prevalence.csv",
            "prevalence.png", "prevalence.svg", "prevalence_full.csv", "report.html",
-           "table1.csv"]
+           "table1.csv", "tables.md"]
 
 
 @pytest.fixture(scope="module")
@@ -78,7 +78,7 @@ def test_the_report_is_self_contained_and_says_what_it_is(demo_run):
         assert external not in page, f"the page must not load anything: {external}"
     assert "Invented data" in page and "Nothing here is medical advice" in page
     for heading in ["Data", "Who was analysed", "Table 1", "Prevalence", "Odds ratios",
-                    "Forest plot", "Methods", "Cautions"]:
+                    "Forest plot", "Methods", "Limitations and cautions"]:
         assert f"<h2>{heading}</h2>" in page
     assert "Taylor-series linearisation" in page and "20 df" in page
 

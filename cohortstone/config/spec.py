@@ -93,6 +93,13 @@ class DescribeSpec:
 
 
 @dataclass(frozen=True)
+class ReportSpec:
+    """How the published files are written."""
+
+    suppress_counts_below: int = 11   # counts of 1 .. this − 1 people are withheld
+
+
+@dataclass(frozen=True)
 class Study:
     """A whole validated config."""
 
@@ -106,6 +113,7 @@ class Study:
     models: tuple[ModelSpec, ...] = ()
     prevalence: PrevalenceSpec | None = None
     describe: DescribeSpec | None = None
+    report: ReportSpec = ReportSpec()
     config_file: str | None = None
     raw: Any = field(default=None, compare=False, repr=False)
 
@@ -402,12 +410,25 @@ def _describe(c: _Checker, raw: Any) -> DescribeSpec | None:
     return DescribeSpec(columns=columns, by=by, categorical=categorical)
 
 
+def _report(c: _Checker, raw: Any) -> ReportSpec:
+    path = ("report",)
+    if not c.mapping(path, raw, (), ("suppress_counts_below",)):
+        return ReportSpec()
+    value = raw.get("suppress_counts_below", 11)
+    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+        c.fail(path + ("suppress_counts_below",), f"expected a whole number of 1 or more (1 "
+               f"turns the protection off), found {value!r}.")
+        return ReportSpec()
+    return ReportSpec(suppress_counts_below=value)
+
+
 def parse_study(raw: RawConfig) -> Study:
     """Validate the whole document in one pass; raise one `ConfigError` listing every fault."""
     c = _Checker(raw)
     doc = raw.data
     if not c.mapping((), doc, ("name", "data"), ("title", "output", "derive", "population",
-                                                 "design", "models", "prevalence", "describe")):
+                                                 "design", "models", "prevalence", "describe",
+                                                 "report")):
         raise ConfigError(c.problems, file=raw.file)
     name = c.text(("name",), doc.get("name"), NAME_PATTERN,
                   "an output name of lower-case letters, digits, - or _ (it names a folder "
@@ -437,10 +458,12 @@ def parse_study(raw: RawConfig) -> Study:
             seen.add(model.name)
     prevalence = _prevalence(c, doc["prevalence"]) if "prevalence" in doc else None
     describe = _describe(c, doc["describe"]) if "describe" in doc else None
+    report = _report(c, doc["report"]) if "report" in doc else ReportSpec()
     if isinstance(doc, dict) and not any(k in doc for k in ("models", "prevalence", "describe")):
         c.fail((), "nothing to estimate: add `models`, `prevalence` or `describe`.")
     if c.problems:
         raise ConfigError(c.problems, file=raw.file)
     return Study(name=name, title=str(title), output=Path(output), data=data,  # type: ignore
                  derive=derive, population=population, design=design, models=tuple(models),
-                 prevalence=prevalence, describe=describe, config_file=raw.file, raw=doc)
+                 prevalence=prevalence, describe=describe, report=report,
+                 config_file=raw.file, raw=doc)

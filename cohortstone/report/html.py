@@ -7,7 +7,8 @@ from typing import Any
 import pandas as pd
 
 from cohortstone.config.spec import Study
-from cohortstone.prevalence import published
+from cohortstone.report import views
+from cohortstone.report.cells import rule_text
 from cohortstone.report.methods import methods_text
 from cohortstone.report.tables import interval_text, p_text
 
@@ -52,18 +53,18 @@ def _table(frame: pd.DataFrame, numeric: set[str]) -> str:
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
-def _ratio_view(rows: pd.DataFrame) -> pd.DataFrame:
-    view = pd.DataFrame({
-        "Term": rows["term"],
-        "Level": [lv if isinstance(lv, str) and lv else (f"per {p:g}" if pd.notna(p) else "")
-                  for lv, p in zip(rows["level"], rows["per"])],
-        "n": rows["n"].astype(int),
-        "Cases": rows["cases"].astype(int),
-        "Odds ratio (95% CI)": [interval_text(o, lo, hi) for o, lo, hi in
-                                zip(rows["odds_ratio"], rows["ci_lower"], rows["ci_upper"])],
-        "p": [p_text(p) for p in rows["p_value"]],
-    })
-    return view
+def _job(study: Study) -> str:
+    """One sentence on what this analysis estimates, from the config."""
+    asks = []
+    if study.describe is not None:
+        asks.append("describes the analysis population")
+    if study.prevalence is not None:
+        asks.append(f"estimates how common `{study.prevalence.outcome}` is")
+    if study.models:
+        exposures = sorted({m.exposure for m in study.models})
+        asks.append("estimates odds ratios for " + ", ".join(f"`{e}`" for e in exposures))
+    design = "design-based, " if study.design is not None else ""
+    return f"This {design}cross-sectional analysis " + "; ".join(asks) + "."
 
 
 def _figure(svg: str, caption: str) -> str:
@@ -71,7 +72,8 @@ def _figure(svg: str, caption: str) -> str:
             "</figcaption></figure>")
 
 
-def _odds_ratio_section(odds_ratios: pd.DataFrame, svg: str, info: dict) -> list[str]:
+def _odds_ratio_section(odds_ratios: pd.DataFrame, svg: str, info: dict, threshold: int
+                        ) -> list[str]:
     out = ["<h2>Odds ratios</h2>"]
     for model, rows in odds_ratios.groupby("model", sort=False):
         first = rows.iloc[0]
@@ -87,37 +89,10 @@ def _odds_ratio_section(odds_ratios: pd.DataFrame, svg: str, info: dict) -> list
                    f"{'; ' + '; '.join(extra) if extra else ''}.</p>")
         if isinstance(first["flag"], str) and first["flag"]:
             out.append(f"<p class=\"flag\">Not estimated: {_e(first['flag'])}.</p>")
-        out.append(_table(_ratio_view(rows), {"n", "Cases", "Odds ratio (95% CI)", "p"}))
+        out.append(_table(views.ratios(rows, threshold), {"n", "Cases", "Odds ratio (95% CI)", "p"}))
     out.append("<h2>Forest plot</h2>" + _figure(svg, "Exposure odds ratios with 95% confidence "
                                                  "intervals (log scale; dashed line at 1)."))
     return out
-
-
-def _percent(value: float, lower: float, upper: float) -> str:
-    if pd.isna(value):
-        return ""
-    return f"{100 * value:.1f} ({100 * lower:.1f}\u2013{100 * upper:.1f})"
-
-
-def _prevalence_view(rows: pd.DataFrame) -> pd.DataFrame:
-    shown = published(rows)
-    view = pd.DataFrame({
-        "Group": ["everyone" if b == "all" else f"{b}: {g}"
-                  for b, g in zip(shown["by"], shown["group"])],
-        "n": shown["n"].astype(int),
-        "Prevalence, % (95% CI)": [_percent(p, lo, hi) for p, lo, hi in
-                                   zip(shown["prevalence"], shown["ci_lower"], shown["ci_upper"])],
-        "df": shown["df"].map(lambda d: "" if pd.isna(d) else str(int(d))),
-        "Reliability": [w if not r else f"{w}: {r}" for w, r in
-                        zip(shown["reliability"], shown["reliability_reason"])],
-    })
-    if "adjusted_prevalence" in shown.columns:
-        view.insert(3, "Age-standardized, % (95% CI)", [
-            _percent(p, lo, hi) or ("\u2014" if r.startswith("not standardized") else "")
-            for p, lo, hi, r in
-            zip(shown["adjusted_prevalence"], shown["adjusted_ci_lower"],
-                shown["adjusted_ci_upper"], shown["adjusted_reliability_reason"])])
-    return view
 
 
 def _prevalence_section(study: Study, estimates: Any, svg: str) -> list[str]:
@@ -127,7 +102,7 @@ def _prevalence_section(study: Study, estimates: Any, svg: str) -> list[str]:
            "<em>suppress</em> are left blank here and kept in <code>prevalence_full.csv</code>; "
            "<em>review</em> marks estimates to read with care (NCHS Data Presentation Standards "
            "for Proportions, 2017).</p>",
-           _table(_prevalence_view(estimates.prevalence),
+           _table(views.prevalence(estimates.prevalence, study.report.suppress_counts_below),
                   {"n", "Prevalence, % (95% CI)", "Age-standardized, % (95% CI)", "df"}),
            "<p class=\"note\">\u2014 marks a group that does not span every standard age "
            "group, so it is not age-standardized.</p>" if spec.standardize else "",
@@ -143,32 +118,34 @@ def _prevalence_section(study: Study, estimates: Any, svg: str) -> list[str]:
     return out
 
 
-def _table1_view(table1: pd.DataFrame) -> pd.DataFrame:
-    rows = table1.copy()
-    rows["cell"] = [
-        "" if pd.isna(e) else (f"{e:.1f}% ({s:.1f})" if stat == "percent" else f"{e:.2f} ({s:.2f})")
-        + f" [n={n}]" for e, s, stat, n in zip(rows["estimate"], rows["se"], rows["statistic"],
-                                                 rows["n"])]
-    rows["heading"] = ["Everyone" if b == "all" else f"{b} = {g}"
-                       for b, g in zip(rows["by"], rows["group"])]
-    rows["Characteristic"] = [c if not lv else f"{c}: {lv}" for c, lv in
-                              zip(rows["column"], rows["level"])]
-    order = list(dict.fromkeys(rows["heading"]))
-    wide = rows.pivot_table(index="Characteristic", columns="heading", values="cell",
-                            aggfunc="first", sort=False).reindex(columns=order)
-    missing = rows.groupby("column", sort=False)["missing"].first()
-    wide["Missing (everyone)"] = [missing[c.split(": ")[0]] for c in wide.index]
-    return wide.reset_index().fillna("")
+def _changes_section(changes: pd.DataFrame) -> list[str]:
+    both = changes[changes["status"] == "both"]
+    moved = both[both["beyond_intervals"]]
+    out = ["<h2>Changes since the previous report</h2>",
+           f"<p>{len(both)} estimates appear in both reports; {len(moved)} changed by more than "
+           "their intervals allow (|difference| / \u221a(SE\u2081\u00b2 + SE\u2082\u00b2) > "
+           f"1.96); {int((changes['status'] == 'new').sum())} are new and "
+           f"{int((changes['status'] == 'vanished').sum())} have vanished. The full list is in "
+           "<code>changes.csv</code>.</p>"]
+    listed = pd.concat([moved, changes[changes["status"] != "both"]])
+    if len(listed):
+        view = pd.DataFrame({
+            "Table": listed["table"], "Estimate": listed["key"], "Status": listed["status"],
+            "Before": listed["old"].map(lambda v: "" if pd.isna(v) else f"{v:.4g}"),
+            "Now": listed["new"].map(lambda v: "" if pd.isna(v) else f"{v:.4g}"),
+        })
+        out.append(_table(view, {"Before", "Now"}))
+    return out
 
 
 def page(study: Study, estimates: Any, figures: dict, info: dict) -> str:
     """The whole report; sections for results the config did not ask for are absent."""
     title = study.title or study.name
+    threshold = study.report.suppress_counts_below
     out = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
            f"<title>{_e(title)}</title><style>{CSS}</style></head><body>",
            f"<h1>{_e(title)}</h1>",
-           f"<p class=\"note\">Analysis <code>{_e(study.name)}</code>: design-based estimates "
-           "from one configuration file.</p>"]
+           f"<p class=\"note\">Analysis <code>{_e(study.name)}</code>. {_e(_job(study))}</p>"]
     if info.get("invented"):
         out.append(f"<div class=\"banner\"><strong>Invented data.</strong> This report runs on "
                    f"{_e(info['invented'])}. Its numbers show how the tool works; they are not "
@@ -179,20 +156,24 @@ def page(study: Study, estimates: Any, figures: dict, info: dict) -> str:
         out.append(_table(pd.DataFrame([{"File": k, "SHA-256": v}
                                         for k, v in info["inputs"].items()]), set()))
     out.append("<h2>Who was analysed</h2>")
-    out.append(_table(pd.DataFrame(info["flow"]), {"People"}))
+    out.append(_table(views.flow(info["flow"], threshold), {"People"}))
     if estimates.table1 is not None:
         out.append("<h2>Table 1</h2><p class=\"note\">Weighted means (SE) and percentages (SE) "
                    "with unweighted n.</p>")
-        out.append(_table(_table1_view(estimates.table1), set()))
+        out.append(_table(views.table1(estimates.table1, threshold), set()))
     if estimates.prevalence is not None:
         out += _prevalence_section(study, estimates, figures["prevalence"])
     if estimates.odds_ratios is not None:
-        out += _odds_ratio_section(estimates.odds_ratios, figures["forest"], info)
+        out += _odds_ratio_section(estimates.odds_ratios, figures["forest"], info, threshold)
+    if info.get("changes") is not None:
+        out += _changes_section(info["changes"])
     out.append(f"<h2>Methods</h2><p>{_e(methods_text(study, info))}</p>")
+    if threshold > 1:
+        out.append(f"<p class=\"note\">{_e(rule_text(threshold))}</p>")
     if info.get("notes"):
         out.append("<ul class=\"note\">" + "".join(f"<li>{_e(n)}</li>" for n in info["notes"])
                    + "</ul>")
-    out.append("<h2>Cautions</h2><ul>" + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS)
+    out.append("<h2>Limitations and cautions</h2><ul>" + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS)
                + "</ul>")
     out.append("</body></html>\n")
     return "\n".join(out)

@@ -1,0 +1,88 @@
+"""Display views of the tidy result frames, shared by the HTML page and `tables.md`.
+
+Each view takes a result frame and the small-cell threshold and returns a frame of text
+ready to print: intervals as `1.23 (1.05–1.44)`, percentages to one decimal, small counts
+withheld.
+"""
+from __future__ import annotations
+
+import pandas as pd
+
+from cohortstone.prevalence import published
+from cohortstone.report.cells import is_small
+from cohortstone.report.tables import interval_text, p_text
+
+
+def count_text(value: object, threshold: int) -> str:
+    if value is None or pd.isna(value):
+        return ""
+    return f"<{threshold}" if is_small(value, threshold) else f"{int(value)}"
+
+
+def percent_text(value: float, lower: float, upper: float) -> str:
+    if pd.isna(value):
+        return ""
+    return f"{100 * value:.1f} ({100 * lower:.1f}\u2013{100 * upper:.1f})"
+
+
+def ratios(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
+    """One model's odds-ratio rows: term, level (or unit), n, cases, ratio and interval, p."""
+    return pd.DataFrame({
+        "Term": rows["term"],
+        "Level": [lv if isinstance(lv, str) and lv else (f"per {p:g}" if pd.notna(p) else "")
+                  for lv, p in zip(rows["level"], rows["per"])],
+        "n": [count_text(v, threshold) for v in rows["n"]],
+        "Cases": [count_text(v, threshold) for v in rows["cases"]],
+        "Odds ratio (95% CI)": [interval_text(o, lo, hi) for o, lo, hi in
+                                zip(rows["odds_ratio"], rows["ci_lower"], rows["ci_upper"])],
+        "p": [p_text(p) for p in rows["p_value"]],
+    })
+
+
+def prevalence(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
+    """Prevalence rows with suppressed estimates blanked and the reliability reason shown."""
+    shown = published(rows)
+    view = pd.DataFrame({
+        "Group": ["everyone" if b == "all" else f"{b}: {g}"
+                  for b, g in zip(shown["by"], shown["group"])],
+        "n": [count_text(v, threshold) for v in shown["n"]],
+        "Prevalence, % (95% CI)": [percent_text(p, lo, hi) for p, lo, hi in
+                                   zip(shown["prevalence"], shown["ci_lower"], shown["ci_upper"])],
+        "df": shown["df"].map(lambda d: "" if pd.isna(d) else str(int(d))),
+        "Reliability": [w if not r else f"{w}: {r}" for w, r in
+                        zip(shown["reliability"], shown["reliability_reason"])],
+    })
+    if "adjusted_prevalence" in shown.columns:
+        view.insert(3, "Age-standardized, % (95% CI)", [
+            percent_text(p, lo, hi) or ("\u2014" if r.startswith("not standardized") else "")
+            for p, lo, hi, r in
+            zip(shown["adjusted_prevalence"], shown["adjusted_ci_lower"],
+                shown["adjusted_ci_upper"], shown["adjusted_reliability_reason"])])
+    return view
+
+
+def table1(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
+    """Table 1 in wide form: one row per characteristic, one column per group."""
+    rows = rows.copy()
+    rows["cell"] = [
+        "" if pd.isna(e) else (f"{e:.1f}% ({s:.1f})" if stat == "percent" else f"{e:.2f} ({s:.2f})")
+        + f" [n={count_text(n, threshold)}]"
+        for e, s, stat, n in zip(rows["estimate"], rows["se"], rows["statistic"], rows["n"])]
+    rows["heading"] = ["Everyone" if b == "all" else f"{b} = {g}"
+                       for b, g in zip(rows["by"], rows["group"])]
+    rows["Characteristic"] = [c if not lv else f"{c}: {lv}" for c, lv in
+                              zip(rows["column"], rows["level"])]
+    order = list(dict.fromkeys(rows["heading"]))
+    wide = rows.pivot_table(index="Characteristic", columns="heading", values="cell",
+                            aggfunc="first", sort=False).reindex(columns=order)
+    missing = rows[rows["group"] == "all"].groupby("column", sort=False)["missing"].first()
+    wide["Missing (everyone)"] = [count_text(missing[c.split(": ")[0]], threshold) or "0"
+                                  for c in wide.index]
+    return wide.reset_index().fillna("")
+
+
+def flow(rows: list[dict], threshold: int) -> pd.DataFrame:
+    """The analysis population step by step (STROBE item 13)."""
+    frame = pd.DataFrame(rows)
+    frame["People"] = [count_text(v, threshold) for v in frame["People"]]
+    return frame
