@@ -130,6 +130,14 @@ def _flow_rows(prepared: Prepared) -> list[dict]:
     return rows
 
 
+def _cycles(prepared: Prepared) -> list[str]:
+    """Survey cycles present in the analysis population (when the data carry a `cycle`)."""
+    if "cycle" not in prepared.frame.columns:
+        return []
+    cycles = prepared.frame.loc[prepared.population, "cycle"].dropna().unique()
+    return sorted(map(str, cycles))
+
+
 def _source_text(study: Study) -> str:
     if study.data.source == "demo":
         return f"the built-in demo dataset `{study.data.dataset}` — {DEMO_LABEL}"
@@ -182,6 +190,7 @@ def _info(study: Study, prepared: Prepared, estimates: Estimates, inputs: dict) 
     return {
         "invented": DEMO_LABEL if study.data.source == "demo" else None,
         "source_text": _source_text(study),
+        "cycles": _cycles(prepared),
         "inputs": {Path(k).name: v for k, v in inputs.items()},
         "flow": _flow_rows(prepared),
         "outcomes": {m.name: m.outcome for m in study.models},

@@ -81,13 +81,15 @@ def test_the_report_is_self_contained_and_says_what_it_is(demo_run):
                     "Forest plot", "Methods", "Limitations and cautions"]:
         assert f"<h2>{heading}</h2>" in page
     assert "Taylor-series linearisation" in page and "20 df" in page
+    assert "Cycles in the analysis population: demo-1." in page
 
 
 def test_a_rerun_gives_byte_identical_tables_and_figures(demo_run, tmp_path):
     _, out = demo_run
     cohortstone.run(DEMO, out=tmp_path)
     for name in ["odds_ratios.csv", "forest.svg", "forest.png", "report.html", "prevalence.csv",
-                 "prevalence_full.csv", "prevalence.svg", "prevalence.png", "table1.csv"]:
+                 "prevalence_full.csv", "prevalence.svg", "prevalence.png", "table1.csv",
+                 "tables.md"]:
         assert (tmp_path / "demo" / name).read_bytes() == (out / "demo" / name).read_bytes(), name
 
 

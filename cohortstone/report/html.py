@@ -152,6 +152,8 @@ def page(study: Study, estimates: Any, figures: dict, info: dict) -> str:
                    "findings about any real population.</div>")
     out.append("<h2>Data</h2>")
     out.append(f"<p>Source: {_e(info['source_text'])}.</p>")
+    if info.get("cycles"):
+        out.append(f"<p>Cycles in the analysis population: {_e(', '.join(info['cycles']))}.</p>")
     if info["inputs"]:
         out.append(_table(pd.DataFrame([{"File": k, "SHA-256": v}
                                         for k, v in info["inputs"].items()]), set()))
