@@ -59,7 +59,8 @@ def _codes(values: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 def _check_column(frame: pd.DataFrame, key: str, column: str) -> pd.Series:
     if column not in frame.columns:
         from cohortstone.population import suggest
-        raise DataError(f"design.{key}: column `{column}` is not in the data.{suggest(column, frame)}")
+        raise DataError(f"design.{key}: column `{column}` is not in the data."
+                        f"{suggest(column, frame)}")
     series = frame[column]
     missing = int(series.isna().sum())
     if missing:

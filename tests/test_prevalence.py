@@ -110,7 +110,8 @@ def test_the_trend_across_cycles_matches_R_survey_svyglm(rscript, tmp_path):
               "prevalence": {"outcome": "stone_ever", "trend": "cycle"}}
     results = cohortstone.run(config, write=False)
     trend = results.prevalence_trend.iloc[0]
-    assert trend["levels"] == "C1 < C2 < C3" and trend["df"] == 72 - 36  # 36 strata (12 per cycle) of 2 clusters
+    # 36 strata (12 per cycle) of 2 clusters each
+    assert trend["levels"] == "C1 < C2 < C3" and trend["df"] == 72 - 36
     frame = pd.read_csv(path)
     frame["step"] = frame["cycle"].map({"C1": 0, "C2": 1, "C3": 2})
     frame.to_csv(tmp_path / "steps.csv", index=False)

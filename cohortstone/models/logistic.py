@@ -14,7 +14,7 @@ from cohortstone.models.fit import Fit
 MAX_ITERATIONS = 100
 TOLERANCE = 1e-12
 SEPARATION_ETA = 30.0  # |linear predictor| at which a fitted probability is 0 or 1 to 1e-13
-BLOCK_ROWS = 4096  # rows per block of the information sum: a block and its weighted copy stay in cache
+BLOCK_ROWS = 4096  # rows per block of the information sum; a block and its copy stay in cache
 PROBE_ROWS = 1024  # leading rows that usually show a column is not a 0/1 indicator
 
 

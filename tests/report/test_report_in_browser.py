@@ -6,7 +6,6 @@ import json
 import subprocess
 from pathlib import Path
 
-import numpy as np
 import pytest
 from matplotlib import image
 
