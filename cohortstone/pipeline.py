@@ -168,10 +168,18 @@ def estimate(prepared: Prepared, clock: _Clock) -> Estimates:
     odds_ratios = pd.concat(tables, ignore_index=True) if tables else None
     prev = trend = table1 = None
     notes: list[str] = []
+    if design.design_based:
+        for name, matrix in prepared.matrices.items():
+            lonely = prevalence.lonely_in_domain(design, matrix.in_model)
+            if lonely:
+                notes.append(f"model {name}: stratum/strata {', '.join(map(str, lonely))} hold "
+                             "members of its population in one cluster only; their other "
+                             "clusters contribute zero totals (the standard domain variance).")
     if study.prevalence is not None:
         with clock.stage("prevalence"):
-            prev, notes = prevalence.estimate(prepared.frame, study.prevalence,
-                                              prepared.population, design)
+            prev, prev_notes = prevalence.estimate(prepared.frame, study.prevalence,
+                                                   prepared.population, design)
+            notes += prev_notes
             if study.prevalence.trend:
                 trend = prevalence.trend_test(prepared.frame, study.prevalence,
                                               prepared.population, design)

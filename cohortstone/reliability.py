@@ -38,6 +38,8 @@ def judge(p: float, lower: float, upper: float, n_eff: float, df: int | None
           ) -> tuple[str, str]:
     """(`ok` | `review` | `suppress`, the reason in plain words)."""
     width = upper - lower
+    if df is not None and df < 1:
+        return SUPPRESS, "no design degrees of freedom (one cluster per stratum)"
     if n_eff < MIN_EFFECTIVE_N:
         return SUPPRESS, f"effective sample size {n_eff:.1f} is below {MIN_EFFECTIVE_N}"
     if width >= MAX_WIDTH:

@@ -136,3 +136,20 @@ def test_bad_prevalence_blocks_are_data_errors(block, message):
     with pytest.raises(DataError, match=None) as info:
         cohortstone.run(config, write=False)
     assert message in str(info.value)
+
+
+def test_a_population_in_one_cluster_per_stratum_has_no_df_and_is_flagged(tmp_path):
+    # invented: everyone in the population lives in the first cluster of their stratum
+    frame = demo.load()
+    frame["district"] = np.where(frame["psu"] == 1, "north", "south")
+    frame.to_csv(tmp_path / "s.csv", index=False)
+    config = {"name": "x", "data": {"source": "table", "path": str(tmp_path / "s.csv")},
+              "population": ["age_years >= 20", "district == 'north'"], "design": DESIGN,
+              "models": [{"name": "m", "outcome": "stone_ever", "exposure": "water_l_day"}],
+              "prevalence": {"outcome": "stone_ever"}}
+    results = cohortstone.run(config, write=False)
+    assert results.odds_ratios["flag"].str.startswith("no design degrees of freedom").all()
+    assert results.odds_ratios["odds_ratio"].isna().all()
+    row = results.prevalence.iloc[0]
+    assert row["df"] == 0 and row["reliability"] == "suppress"
+    assert any("one cluster only" in note for note in results.manifest["notes"])

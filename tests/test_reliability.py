@@ -27,6 +27,8 @@ from cohortstone.reliability import design_effect, effective_n, judge
     # df boundary: 8 is enough, 7 calls for review
     (0.5, 0.45, 0.55, 100, 8, "ok", ""),
     (0.5, 0.45, 0.55, 100, 7, "review", "only 7 degrees of freedom (below 8)"),
+    # no degrees of freedom at all: nothing can be said about the precision
+    (0.5, float("nan"), float("nan"), 100, 0, "suppress", "no design degrees of freedom"),
     # an estimate of 0% with a narrow interval is presented for review
     (0.0, 0.0, 0.04, 100, 20, "review", "the estimate is 0% or 100%"),
     (0.0, 0.0, 0.06, 100, 20, "suppress", "relative interval width infinite"),

@@ -144,6 +144,9 @@ def fit(x: np.ndarray, y: np.ndarray, w: np.ndarray, design: Design, names: list
         totals = cluster_totals(design, x, w * (y - mu))
         cov = bread @ covariance_of_totals(design, totals) @ bread
         df: int | None = degrees_of_freedom(design, in_domain)
+        if df < 1:
+            flag = flag or ("no design degrees of freedom: the population lies in one cluster "
+                            "per stratum, so its variance cannot be estimated")
     else:
         cov, df = bread, None
     return Fit(coef=beta, cov=cov, df=df, converged=converged, iterations=iterations, flag=flag)
