@@ -23,7 +23,7 @@ def korn_graubard(p: float, variance: float, n: int, df: int | None,
                   level: float = 0.95) -> ProportionInterval:
     """Korn–Graubard interval; where the variance is 0 (p = 0 or 1) the actual n is used."""
     alpha = 1 - level
-    if df is not None and df < 1:  # no design degrees of freedom: no interval
+    if df is not None and df < 1 and n > 1:  # no design degrees of freedom: no interval
         return ProportionInterval(float("nan"), float("nan"), float("nan"))
     if variance > 0 and 0 < p < 1:
         n_eff = p * (1 - p) / variance
