@@ -1,4 +1,5 @@
-"""Command line: `cohortstone run CONFIG [--out DIR]` and `cohortstone check CONFIG`.
+"""Command line: `cohortstone run CONFIG [--out DIR]`, `cohortstone check CONFIG` and
+`cohortstone fetch --cycles ... [--components ...] DIR`.
 
 User errors print one paragraph and exit with code 2; `--debug` shows the traceback.
 """
@@ -27,7 +28,27 @@ def _parser() -> argparse.ArgumentParser:
     check = commands.add_parser("check", help="validate config and data without fitting")
     check.add_argument("config", help="the study's YAML file")
     check.add_argument("--debug", action="store_true", help="show a traceback on errors")
+    _fetch_parser(commands)
     return parser
+
+
+def _fetch_parser(commands) -> None:
+    """`fetch`: download the national survey's public files (cohortstone/fetch.py)."""
+    from cohortstone.fetch import BASE
+    from cohortstone.sources.nhanes.cycles import COMPONENTS, CYCLES
+    fetch = commands.add_parser("fetch", help="download the national survey's public .XPT "
+                                "files into a folder (resumable; keeps a checksum list)")
+    fetch.add_argument("folder", help="where the files go (created if missing)")
+    fetch.add_argument("--cycles", action="append", metavar="LIST",
+                       help=f"comma-separated cycles: {', '.join(CYCLES)}")
+    fetch.add_argument("--components", action="append", metavar="LIST",
+                       help=f"comma-separated (default: all): {', '.join(COMPONENTS)}")
+    fetch.add_argument("--base", default=BASE, help=f"download address (default: {BASE}); "
+                       "files are read from <base>/<first year>/DataFiles/<FILE>.xpt, or give a "
+                       "template with {file} (and {year} or {cycle})")
+    fetch.add_argument("--refresh", action="store_true",
+                       help="download files already present again (replaced only when complete)")
+    fetch.add_argument("--debug", action="store_true", help="show a traceback on errors")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -38,6 +59,14 @@ def main(argv: list[str] | None = None) -> int:
             warnings.simplefilter("default")
             if args.command == "check":
                 print(pipeline.check(args.config))
+                return 0
+            if args.command == "fetch":
+                from pathlib import Path
+
+                from cohortstone.fetch import fetch
+                for line in fetch(Path(args.folder), args.cycles, args.components,
+                                  base=args.base, refresh=args.refresh):
+                    print(line)
                 return 0
             results = pipeline.run(args.config, out=args.out, compare=args.compare)
     except CohortstoneError as exc:

@@ -13,7 +13,8 @@ import pytest
 
 R_MISSING = "R's survey package not found: the reference checks against R did NOT run"
 BROWSER_MISSING = "Chromium not found: the report was NOT rendered in a browser"
-LOUD_SKIPS = (R_MISSING, BROWSER_MISSING)
+REAL_FILES_MISSING = "REAL-FILE CHECK DID NOT RUN"  # tests/sources/test_nhanes_real_files.py
+LOUD_SKIPS = (R_MISSING, BROWSER_MISSING, REAL_FILES_MISSING)
 
 
 @pytest.fixture(scope="session")
@@ -52,6 +53,7 @@ def pytest_terminal_summary(terminalreporter, exitstatus, config):
                    if sentence in str(getattr(rep, "longrepr", ""))]
         if skipped:
             terminalreporter.write_sep("!", sentence, red=True, bold=True)
-            terminalreporter.write_line(
-                f"{len(skipped)} test(s) were skipped for this; `.ci/run` installs what they "
-                "need.", red=True, bold=True)
+            remedy = ("set COHORTSTONE_NHANES_DIR to a folder of the publisher's files"
+                      if sentence == REAL_FILES_MISSING else "`.ci/run` installs what they need")
+            terminalreporter.write_line(f"{len(skipped)} test(s) were skipped for this; "
+                                        f"{remedy}.", red=True, bold=True)

@@ -17,15 +17,16 @@ from cohortstone.errors import ConfigError
 from cohortstone.standard_population import BUILT_IN, Standard, built_in
 
 NAME_PATTERN = re.compile(r"^[a-z0-9_-]+$")
-SOURCES = ("table", "demo")  # nhanes: planned (see the README)
-DEMO_DATASETS = ("survey",)
-MODEL_TYPES = ("logistic",)  # recurrence: planned
-PLANNED = {
-    ("source", "nhanes"): "the `nhanes` source is planned but not available in this version; "
-    "use `source: table` with a file you prepared, or `source: demo`",
-    ("type", "recurrence"): "`recurrence` models are planned but not available in this "
-    "version; use `type: logistic`",
-}
+SOURCES = ("table", "demo", "nhanes")
+DEMO_DATASETS = ("survey", "clinic", "clinic_intervals")
+MODEL_TYPES = ("logistic", "recurrence")
+PLANNED: dict = {}
+PROPORTIONAL_HAZARDS_RULES = ("warn", "fail")
+RECURRENCE_WITH_DESIGN = (
+    "recurrence models are fitted to a cohort without survey weights, strata or clusters, "
+    "and this config has a survey `design`. Remove the `design` block (a recurrence model's "
+    "own `cluster` key gives a variance clustered on clinic or family), or run survey models "
+    "and recurrence models from separate configs.")
 SINGLE_CLUSTER_RULES = ("error", "overall_mean")
 
 
@@ -35,6 +36,11 @@ class DataSpec:
     path: Path | None = None
     dataset: str | None = None
     rename: tuple[tuple[str, str], ...] = ()
+    # --- nhanes (the national survey's public files): see cohortstone/sources/nhanes ---
+    dir: Path | None = None            # folder of the .XPT files
+    cycles: tuple[str, ...] = ()       # e.g. ("2015-2016", "2017-2020")
+    foods: Path | None = None          # own food-code map (YAML); None: the shipped one
+    cache: Path | None = None          # harmonized-table cache folder; None: no cache
 
 
 @dataclass(frozen=True)
@@ -67,10 +73,46 @@ class ModelSpec:
     adjust: tuple[str, ...] = ()
     categorical: tuple[str, ...] = ()
     reference: tuple[tuple[str, str], ...] = ()
+    recurrence: RecurrenceSpec | None = None   # follow-up of a `type: recurrence` model
 
     def columns(self) -> list[str]:
         """Every data column the model reads, outcome first."""
-        return list(dict.fromkeys([self.outcome, self.exposure, *self.adjust]))
+        follow_up = [c for _, c in self.recurrence.named_columns()] if self.recurrence else []
+        return list(dict.fromkeys([self.outcome, self.exposure, *self.adjust, *follow_up]))
+
+
+@dataclass(frozen=True)
+class RecurrenceSpec:
+    """Follow-up of a recurrence model: durations, dates, or counting-process rows.
+
+    durations: `time` (years) and `event` (1 recurrence, 0 censored), one row per person;
+    dates: `index_date`, `event_date` (empty: no recurrence) and `end_date`, one row per person;
+    counting: `start`, `time`, `event` and `id`, one row per (start, time] interval.
+    """
+
+    time: str | None = None
+    event: str | None = None
+    start: str | None = None
+    id: str | None = None
+    index_date: str | None = None
+    event_date: str | None = None
+    end_date: str | None = None
+    cluster: str | None = None       # robust variance clustered on this column
+    competing: str | None = None     # 0/1: death ended follow-up without a recurrence
+    proportional_hazards: str = "warn"   # a failed check: warn (a note) | fail (stop)
+
+    COLUMN_KEYS = ("time", "event", "start", "id", "index_date", "event_date", "end_date",
+                   "cluster", "competing")
+
+    @property
+    def form(self) -> str:
+        if self.index_date is not None:
+            return "dates"
+        return "counting" if self.start is not None else "durations"
+
+    def named_columns(self) -> list[tuple[str, str]]:
+        """(key, column) of every follow-up column the config names."""
+        return [(k, getattr(self, k)) for k in self.COLUMN_KEYS if getattr(self, k) is not None]
 
 
 @dataclass(frozen=True)
@@ -226,8 +268,10 @@ def _data(c: _Checker, raw: Any) -> DataSpec | None:
         c.mapping(path, raw, ("source",), ())
         return None
     source = c.choice(path + ("source",), raw.get("source"), SOURCES, "source")
-    optional = {"table": ("path", "rename"), "demo": ("dataset", "rename")}.get(source, ())
-    required = ("source", "path") if source == "table" else ("source",)
+    optional = {"table": ("path", "rename"), "demo": ("dataset", "rename"),
+                "nhanes": ("dir", "cycles", "foods", "cache", "rename")}.get(source, ())
+    required = {"table": ("source", "path"), "nhanes": ("source", "dir", "cycles")}.get(
+        source, ("source",))
     c.mapping(path, raw, required, tuple(k for k in optional if k not in required))
     if source is None:
         return None
@@ -251,7 +295,50 @@ def _data(c: _Checker, raw: Any) -> DataSpec | None:
             for old, new in raw["rename"].items():
                 if c.text(path + ("rename", old), new, NAME_PATTERN, "a snake_case column name"):
                     rename.append((str(old), new))
+    if source == "nhanes":
+        return _nhanes_data(c, raw, tuple(rename))
     return DataSpec(source=source, path=file, dataset=dataset, rename=tuple(rename))
+
+
+# --- the nhanes source's keys (begin) ------------------------------------------------------
+def _folder(c: _Checker, key: tuple, value: Any, what: str) -> Path | None:
+    text = c.text(key, value, what=what)
+    if text is None:
+        return None
+    folder = Path(text)
+    return folder if folder.is_absolute() else c.raw.directory / folder
+
+
+def _nhanes_data(c: _Checker, raw: dict, rename: tuple) -> DataSpec | None:
+    """`dir`, `cycles` (known, no duplicates, never 2017-2018 with 2017-2020), `foods`, `cache`."""
+    from cohortstone.sources.nhanes.cycles import cycle_problems
+    path = ("data",)
+    folder = _folder(c, path + ("dir",), raw["dir"], "the folder of the survey's .XPT files") \
+        if "dir" in raw else None
+    cycles = raw.get("cycles", [])
+    cycles = [cycles] if isinstance(cycles, str) else cycles
+    if not isinstance(cycles, list) or not cycles:
+        c.fail(path + ("cycles",), f"expected a list of survey cycles such as [2015-2016, "
+               f"2017-2020], found {_kind(cycles)}.")
+        cycles = []
+    for index, message in cycle_problems(cycles):
+        c.fail(path + ("cycles",) + ((index,) if index is not None else ()), message)
+    foods = None
+    if "foods" in raw:
+        foods = _folder(c, path + ("foods",), raw["foods"], "the path of a food-code map (.yaml)")
+        if foods is not None and foods.suffix.lower() not in (".yaml", ".yml"):
+            c.fail(path + ("foods",), f"expected a .yaml file, found {raw['foods']!r}.")
+    cache = folder / ".cohortstone-cache" if folder is not None else None
+    if "cache" in raw:
+        if raw["cache"] is False:
+            cache = None
+        elif raw["cache"] is not True:
+            cache = _folder(c, path + ("cache",), raw["cache"], "a folder for the cache, or false")
+    if folder is None or not cycles:
+        return None
+    return DataSpec(source="nhanes", dir=folder, cycles=tuple(str(x) for x in cycles),
+                    foods=foods, cache=cache, rename=rename)
+# --- the nhanes source's keys (end) --------------------------------------------------------
 
 
 def _derive(c: _Checker, raw: Any) -> tuple[DeriveSpec, ...]:
@@ -307,6 +394,75 @@ def _design(c: _Checker, raw: Any) -> DesignSpec | None:
 
 
 _MODEL_KEYS = ("per", "cuts", "quantiles", "adjust", "categorical", "reference")
+_RECURRENCE_KEYS = RecurrenceSpec.COLUMN_KEYS + ("proportional_hazards",)
+_DATE_KEYS = ("index_date", "event_date", "end_date")
+
+
+def _follow_up_shape(c: _Checker, path: tuple, raw: dict) -> None:
+    """Exactly one of the three shapes: durations, dates, or counting-process rows."""
+    durations = [k for k in ("time", "event", "start", "id") if k in raw]
+    dates = [k for k in _DATE_KEYS if k in raw]
+    if durations and dates:
+        c.fail(path, "give follow-up either as durations (`time`, `event`) or as dates "
+               f"(`index_date`, `event_date`, `end_date`), not both; found {durations + dates}.")
+        return
+    if not durations and not dates:
+        c.fail(path, "a recurrence model needs its follow-up: `time` and `event` (years, and 1 "
+               "for a recurrence, 0 for none), or `index_date`, `event_date` and `end_date`.")
+        return
+    needed = _DATE_KEYS if dates else ("time", "event")
+    shape = ("follow-up given as dates needs `index_date`, `event_date` and `end_date`" if dates
+             else "follow-up in years needs `time` and `event`")
+    for key in needed:
+        if key not in raw:
+            c.fail(path, f"the required key `{key}` is missing ({shape}).")
+    if durations and ("start" in raw) != ("id" in raw):
+        c.fail(path + ("start" if "start" in raw else "id",), "counting-process rows for "
+               "repeated recurrences need both `start` (the interval's start) and `id` (the "
+               "person it belongs to).")
+
+
+def _follow_up_columns(c: _Checker, path: tuple, cols: dict, used: set) -> None:
+    """Follow-up columns are not the exposure or a covariate, and not named twice."""
+    seen: dict[str, str] = {}
+    for key, column in cols.items():
+        if column is None:
+            continue
+        if column in used:
+            c.fail(path + (key,), f"`{column}` is also the exposure or a covariate.")
+        elif column in seen:
+            c.fail(path + (key,), f"`{column}` is already named by `{seen[column]}`.")
+        seen[column] = key
+
+
+def _recurrence(c: _Checker, path: tuple, raw: dict, used: set) -> RecurrenceSpec | None:
+    """The follow-up keys of a recurrence model: one of the three shapes, nothing mixed."""
+    cols = {k: c.text(path + (k,), raw[k], what="a column name")
+            for k in RecurrenceSpec.COLUMN_KEYS if k in raw}
+    _follow_up_shape(c, path, raw)
+    rule = c.choice(path + ("proportional_hazards",), raw.get("proportional_hazards", "warn"),
+                    PROPORTIONAL_HAZARDS_RULES, "rule")
+    _follow_up_columns(c, path, cols, used)
+    if any(v is None for v in cols.values()) or rule is None:
+        return None  # the problem is recorded; parse_study raises before this is used
+    return RecurrenceSpec(proportional_hazards=rule, **cols)
+
+
+def _model_keys(c: _Checker, path: tuple, raw: dict, kind: str | None) -> None:
+    """Allowed and required keys by model type; follow-up keys only for recurrence models."""
+    if kind == "recurrence":
+        c.mapping(path, raw, ("name", "exposure"), ("type", "outcome") + _MODEL_KEYS
+                  + _RECURRENCE_KEYS)
+        if "outcome" in raw:
+            c.fail(path + ("outcome",), "recurrence models take `event` (or `event_date`) for "
+                   "the recurrence, not `outcome`.")
+        return
+    c.mapping(path, raw, ("name", "outcome", "exposure"), ("type",) + _MODEL_KEYS
+              + _RECURRENCE_KEYS)
+    for key in _RECURRENCE_KEYS:
+        if key in raw:
+            c.fail(path + (key,), "this key belongs to `type: recurrence` models; this "
+                   "model is logistic (the default type).")
 
 
 def _model(c: _Checker, path: tuple, raw: Any) -> ModelSpec | None:
@@ -314,11 +470,11 @@ def _model(c: _Checker, path: tuple, raw: Any) -> ModelSpec | None:
         c.fail(path, f"expected a model mapping, found {_kind(raw)}.")
         return None
     kind = c.choice(path + ("type",), raw.get("type", "logistic"), MODEL_TYPES, "type")
-    c.mapping(path, raw, ("name", "outcome", "exposure"), ("type",) + _MODEL_KEYS)
+    _model_keys(c, path, raw, kind)
     name = c.text(path + ("name",), raw.get("name"), NAME_PATTERN,
                   "a model name of lower-case letters, digits, - or _") if "name" in raw else None
     outcome = c.text(path + ("outcome",), raw.get("outcome"), what="a column name") \
-        if "outcome" in raw else None
+        if "outcome" in raw and kind != "recurrence" else None
     exposure = c.text(path + ("exposure",), raw.get("exposure"), what="a column name") \
         if "exposure" in raw else None
     codings = [k for k in ("per", "cuts", "quantiles") if k in raw]
@@ -353,11 +509,16 @@ def _model(c: _Checker, path: tuple, raw: Any) -> ModelSpec | None:
         c.fail(path + ("adjust",), f"the exposure `{exposure}` is also listed in `adjust`.")
     if outcome is not None and outcome in (exposure, *adjust):
         c.fail(path + ("outcome",), "the outcome cannot also be the exposure or a covariate.")
+    recurrence = None
+    if kind == "recurrence":
+        recurrence = _recurrence(c, path, raw, {exposure, *adjust})
+        outcome = None if recurrence is None else recurrence.event or recurrence.event_date
     if None in (kind, name, outcome, exposure):
         return None
     return ModelSpec(name=name, type=kind, outcome=outcome, exposure=exposure,  # type: ignore
                      per=per or 1.0, cuts=cuts, quantiles=quantiles, adjust=adjust,
-                     categorical=categorical, reference=tuple(reference))
+                     categorical=categorical, reference=tuple(reference),
+                     recurrence=recurrence)
 
 
 def _standard(c: _Checker, path: tuple, raw: Any) -> Standard | None:
@@ -422,6 +583,15 @@ def _report(c: _Checker, raw: Any) -> ReportSpec:
     return ReportSpec(suppress_counts_below=value)
 
 
+def _recurrence_with_design(c: _Checker, doc: dict, raw_models: list) -> None:
+    """A survey design and a recurrence model in one config: refused, saying why."""
+    if "design" not in doc:
+        return
+    for i, item in enumerate(raw_models):
+        if isinstance(item, dict) and item.get("type") == "recurrence":
+            c.fail(("models", i, "type"), RECURRENCE_WITH_DESIGN)
+
+
 def parse_study(raw: RawConfig) -> Study:
     """Validate the whole document in one pass; raise one `ConfigError` listing every fault."""
     c = _Checker(raw)
@@ -456,6 +626,7 @@ def parse_study(raw: RawConfig) -> Study:
             if model.name in seen:
                 c.fail(("models", i, "name"), f"the model name `{model.name}` is used twice.")
             seen.add(model.name)
+        _recurrence_with_design(c, doc, raw_models)
     prevalence = _prevalence(c, doc["prevalence"]) if "prevalence" in doc else None
     describe = _describe(c, doc["describe"]) if "describe" in doc else None
     report = _report(c, doc["report"]) if "report" in doc else ReportSpec()

@@ -27,6 +27,8 @@ TABLES = {
     "adjusted_prevalence": ("prevalence_full.csv", ("by", "group"), "adjusted_prevalence",
                             "adjusted_se", False),
     "table1": ("table1.csv", ("column", "level", "by", "group"), "estimate", "se", False),
+    "hazard_ratios": ("hazard_ratios.csv", ("model", "outcome", "term", "level"),
+                      "log_hazard_ratio", "se", True),
 }
 
 
@@ -62,7 +64,8 @@ def _compare(table: str, old: pd.DataFrame, new: pd.DataFrame) -> list[dict]:
         z = (b - a) / spread if spread > 0 else np.nan
         shown = (np.exp(a), np.exp(b)) if log else (a, b)
         rows.append({"table": table, "key": key,
-                     "quantity": "odds_ratio" if log else value, "old": shown[0],
+                     "quantity": value.removeprefix("log_") if log else value,
+                     "old": shown[0],
                      "new": shown[1], "difference": b - a, "z": z,
                      "beyond_intervals": bool(abs(z) > Z) if np.isfinite(z) else False,
                      "status": status})

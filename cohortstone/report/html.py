@@ -36,6 +36,21 @@ CAUTIONS = [
     "Nothing here is medical advice. Decisions about fluids and diet belong with clinicians "
     "and local guidance.",
 ]
+SURVEY_CAUTION = CAUTIONS[1]
+RECURRENCE_CAUTIONS = [
+    "In a clinic cohort, people who drink more or are prescribed a treatment differ in other "
+    "ways too (advice received, severity, follow-up visits); hazard ratios are associations.",
+    "A recurrence is counted only when it is detected and recorded: people seen more often "
+    "have more chances to have one found, and losses to follow-up are assumed unrelated to "
+    "the risk of recurrence.",
+]
+COMPETING_TEXT = (
+    "Two questions, two answers. The cause-specific hazard ratio answers: among people who are "
+    "alive and have not yet recurred, is the exposure associated with the rate at which "
+    "recurrences happen? (Death simply ends follow-up.) The cumulative incidence answers: what "
+    "share of people have had a recurrence by a given time, when some die first? An exposure "
+    "that also changes the death rate can move the two in different directions, so read the "
+    "death hazard ratios beside the recurrence ones.")
 
 
 def _e(value: Any) -> str:
@@ -60,11 +75,20 @@ def _job(study: Study) -> str:
         asks.append("describes the analysis population")
     if study.prevalence is not None:
         asks.append(f"estimates how common `{study.prevalence.outcome}` is")
-    if study.models:
-        exposures = sorted({m.exposure for m in study.models})
+    logistic = [m for m in study.models if m.type != "recurrence"]
+    cohort = [m for m in study.models if m.type == "recurrence"]
+    if logistic:
+        exposures = sorted({m.exposure for m in logistic})
         asks.append("estimates odds ratios for " + ", ".join(f"`{e}`" for e in exposures))
-    design = "design-based, " if study.design is not None else ""
-    return f"This {design}cross-sectional analysis " + "; ".join(asks) + "."
+    if cohort:
+        exposures = sorted({m.exposure for m in cohort})
+        asks.append("estimates hazard ratios of stone recurrence for "
+                    + ", ".join(f"`{e}`" for e in exposures))
+    kind = "cohort" if cohort and not logistic and study.prevalence is None else (
+        "cross-sectional" if not cohort else "")
+    label = ", ".join(w for w in ("design-based" if study.design is not None else "", kind)
+                      if w)
+    return f"This {label + ' ' if label else ''}analysis " + "; ".join(asks) + "."
 
 
 def _figure(svg: str, caption: str) -> str:
@@ -72,7 +96,7 @@ def _figure(svg: str, caption: str) -> str:
             "</figcaption></figure>")
 
 
-def _odds_ratio_section(odds_ratios: pd.DataFrame, svg: str, info: dict, threshold: int
+def _odds_ratio_section(odds_ratios: pd.DataFrame, svg: str | None, info: dict, threshold: int
                         ) -> list[str]:
     out = ["<h2>Odds ratios</h2>"]
     for model, rows in odds_ratios.groupby("model", sort=False):
@@ -90,8 +114,90 @@ def _odds_ratio_section(odds_ratios: pd.DataFrame, svg: str, info: dict, thresho
         if isinstance(first["flag"], str) and first["flag"]:
             out.append(f"<p class=\"flag\">Not estimated: {_e(first['flag'])}.</p>")
         out.append(_table(views.ratios(rows, threshold), {"n", "Cases", "Odds ratio (95% CI)", "p"}))
-    out.append("<h2>Forest plot</h2>" + _figure(svg, "Exposure odds ratios with 95% confidence "
-                                                 "intervals (log scale; dashed line at 1)."))
+    if svg is not None:
+        out.append("<h2>Forest plot</h2>" + _figure(svg, "Exposure odds ratios with 95% "
+                                                     "confidence intervals (log scale; dashed "
+                                                     "line at 1)."))
+    return out
+
+
+def _hazard_ratio_section(study: Study, result: Any, threshold: int) -> list[str]:
+    out = ["<h2>Hazard ratios</h2>"]
+    specs = {m.name: m for m in study.models}
+    for (model, outcome), rows in result.hazard_ratios.groupby(["model", "outcome"],
+                                                              sort=False):
+        first = rows.iloc[0]
+        exp = rows[rows["role"] == "exposure"]
+        extra = []
+        if exp["p_trend"].notna().any():
+            extra.append(f"p for trend {p_text(exp['p_trend'].dropna().iloc[0])}")
+        if exp["p_joint"].notna().any():
+            extra.append(f"joint test of groups p {p_text(exp['p_joint'].dropna().iloc[0])}")
+        spec = specs[model].recurrence
+        source = {
+            "dates": f"dates <code>{_e(spec.index_date)}</code> to <code>"
+                     f"{_e(spec.event_date)}</code> or <code>{_e(spec.end_date)}</code>, in "
+                     "days / 365.25",
+            "counting": f"rows (<code>{_e(spec.start)}</code>, <code>{_e(spec.time)}</code>] "
+                        f"with <code>{_e(spec.event)}</code>, person <code>{_e(spec.id)}</code>",
+        }.get(spec.form, f"<code>{_e(spec.time)}</code> and <code>{_e(spec.event)}</code>")
+        title = model if outcome == "recurrence" else f"{model}: death before a recurrence"
+        out.append(f"<h3>{_e(title)}</h3><p class=\"note\">{_e(first['analysis'])}; follow-up "
+                   f"from {source}; Cox proportional hazards, {_e(first['ties'])} ties; "
+                   f"variance {_e(first['variance'])}; normal-distribution intervals"
+                   f"{_e('; ' + '; '.join(extra)) if extra else ''}.</p>")
+        if isinstance(first["flag"], str) and first["flag"]:
+            out.append(f"<p class=\"flag\">Not estimated: {_e(first['flag'])}.</p>")
+        out.append(_table(views.hazard_ratios(rows, threshold),
+                          {"n", "Events", "Hazard ratio (95% CI)", "p"}))
+    if result.hazard_ratios["outcome"].eq("death").any():
+        out.append(f"<p>{_e(COMPETING_TEXT)}</p>")
+    return out
+
+
+def _curve_section(result: Any, svg: str, threshold: int) -> list[str]:
+    out = ["<h2>Cumulative recurrence</h2>"]
+    if result.curve is not None:
+        for model, rows in result.curve.groupby("model", sort=False):
+            out.append(f"<h3>{_e(model)}</h3><p class=\"note\">{_e(rows['measure'].iloc[0])}, "
+                       "% with 95% interval, and the number still followed and free of "
+                       "recurrence at each time (empty beyond the last follow-up).</p>")
+            out.append(_table(views.recurrence_curve(rows, threshold), set()))
+    if result.per_person is not None:
+        for model, rows in result.per_person.groupby("model", sort=False):
+            out.append(f"<h3>{_e(model)}: recurrences per person</h3><p class=\"note\">Mean "
+                       "cumulative number of recurrences per person with 95% interval "
+                       "(robust to several recurrences of one person); death, when recorded, "
+                       "ends follow-up.</p>")
+            out.append(_table(views.recurrence_curve(rows, threshold, "mean_recurrences"),
+                              set()))
+    out.append(_figure(svg, "Cumulative recurrence (or mean recurrences per person) over "
+                       "follow-up with 95% intervals; numbers at risk below each panel."))
+    return out
+
+
+def _ph_section(result: Any) -> list[str]:
+    out = ["<h2>Proportional-hazards check</h2>",
+           "<p class=\"note\">Does each hazard ratio stay the same over follow-up? A score test "
+           "of a time-varying coefficient per term (the test behind scaled Schoenfeld residual "
+           "plots; time on the Kaplan\u2013Meier scale). p &lt; 0.05 is flagged; the tests are not "
+           "adjusted for their number, and in a large cohort a small p may reflect a departure "
+           "too small to matter.</p>"]
+    for model, rows in result.proportional_hazards.groupby("model", sort=False):
+        out.append(f"<h3>{_e(model)}</h3>")
+        out.append(_table(views.proportional_hazards(rows), {"Chi-square", "df", "p"}))
+    return out
+
+
+def _recurrence_sections(study: Study, result: Any, figures: dict, threshold: int,
+                         with_odds: bool) -> list[str]:
+    out = _hazard_ratio_section(study, result, threshold)
+    out += _curve_section(result, figures["recurrence"], threshold)
+    out += _ph_section(result)
+    ratios = "odds ratios (OR) and hazard ratios (HR)" if with_odds else "hazard ratios"
+    out.append("<h2>Forest plot</h2>" + _figure(figures["forest"], f"Exposure {ratios} with 95% "
+                                                "confidence intervals (log scale; dashed line "
+                                                "at 1)."))
     return out
 
 
@@ -165,8 +271,7 @@ def page(study: Study, estimates: Any, figures: dict, info: dict) -> str:
         out.append(_table(views.table1(estimates.table1, threshold), set()))
     if estimates.prevalence is not None:
         out += _prevalence_section(study, estimates, figures["prevalence"])
-    if estimates.odds_ratios is not None:
-        out += _odds_ratio_section(estimates.odds_ratios, figures["forest"], info, threshold)
+    out += _model_sections(study, estimates, figures, info, threshold)
     if info.get("changes") is not None:
         out += _changes_section(info["changes"])
     out.append(f"<h2>Methods</h2><p>{_e(methods_text(study, info))}</p>")
@@ -175,10 +280,34 @@ def page(study: Study, estimates: Any, figures: dict, info: dict) -> str:
     if info.get("notes"):
         out.append("<ul class=\"note\">" + "".join(f"<li>{_e(n)}</li>" for n in info["notes"])
                    + "</ul>")
-    out.append("<h2>Limitations and cautions</h2><ul>" + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS)
-               + "</ul>")
+    out.append("<h2>Limitations and cautions</h2><ul>" + "".join(
+        f"<li>{_e(c)}</li>" for c in _cautions(study)) + "</ul>")
     out.append("</body></html>\n")
     return "\n".join(out)
+
+
+def _model_sections(study: Study, estimates: Any, figures: dict, info: dict, threshold: int
+                    ) -> list[str]:
+    """Odds ratios, then the recurrence models; one forest plot after both."""
+    result = getattr(estimates, "recurrence", None)
+    out = []
+    if estimates.odds_ratios is not None:
+        out += _odds_ratio_section(estimates.odds_ratios,
+                                   figures["forest"] if result is None else None, info,
+                                   threshold)
+    if result is not None:
+        out += _recurrence_sections(study, result, figures, threshold,
+                                    estimates.odds_ratios is not None)
+    return out
+
+
+def _cautions(study: Study) -> list[str]:
+    """The general cautions; the survey's reverse-causation caution only where it applies,
+    and the cohort's own where recurrence models ran."""
+    cohort = any(m.type == "recurrence" for m in study.models)
+    survey = study.prevalence is not None or any(m.type != "recurrence" for m in study.models)
+    out = [c for c in CAUTIONS if survey or c != SURVEY_CAUTION]
+    return out[:-1] + (RECURRENCE_CAUTIONS if cohort else []) + out[-1:]
 
 
 def _strip_xml_header(svg: str) -> str:

@@ -36,6 +36,33 @@ def document(study: Study, estimates, info: dict) -> str:
         for model, rows in estimates.odds_ratios.groupby("model", sort=False):
             parts += [f"## Odds ratios: {model}", "",
                       table(views.ratios(rows, threshold), {"n", "Cases", "p"}), ""]
+    result = getattr(estimates, "recurrence", None)
+    if result is not None:
+        parts += _recurrence(result, threshold)
     if threshold > 1:
         parts += [rule_text(threshold), ""]
     return "\n".join(parts)
+
+
+def _recurrence(result, threshold: int) -> list[str]:
+    """Hazard ratios per model and outcome, curves at fixed years, the PH check."""
+    parts: list[str] = []
+    for (model, outcome), rows in result.hazard_ratios.groupby(["model", "outcome"], sort=False):
+        title = model if outcome == "recurrence" else f"{model}, death before a recurrence"
+        parts += [f"## Hazard ratios: {title}", "", f"{rows['analysis'].iloc[0]}; "
+                  f"{rows['ties'].iloc[0]} ties; variance {rows['variance'].iloc[0]}.", "",
+                  table(views.hazard_ratios(rows, threshold), {"n", "Events", "p"}), ""]
+    for frame, value, heading in ((result.curve, "cumulative_recurrence",
+                                   "Cumulative recurrence, % (95% CI)"),
+                                  (result.per_person, "mean_recurrences",
+                                   "Mean recurrences per person (95% CI)")):
+        if frame is None:
+            continue
+        for model, rows in frame.groupby("model", sort=False):
+            view = views.recurrence_curve(rows, threshold, value)
+            parts += [f"## {heading}: {model}", "",
+                      table(view, {c for c in view.columns if c != "Group"}), ""]
+    for model, rows in result.proportional_hazards.groupby("model", sort=False):
+        parts += [f"## Proportional-hazards check: {model}", "",
+                  table(views.proportional_hazards(rows), {"Chi-square", "df", "p"}), ""]
+    return parts

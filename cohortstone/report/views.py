@@ -86,3 +86,49 @@ def flow(rows: list[dict], threshold: int) -> pd.DataFrame:
     frame = pd.DataFrame(rows)
     frame["People"] = [count_text(v, threshold) for v in frame["People"]]
     return frame
+
+
+def hazard_ratios(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
+    """One model's hazard-ratio rows for one outcome: term, level (or unit), n, events, ratio
+    and interval, p."""
+    return pd.DataFrame({
+        "Term": rows["term"],
+        "Level": [lv if isinstance(lv, str) and lv else (f"per {p:g}" if pd.notna(p) else "")
+                  for lv, p in zip(rows["level"], rows["per"])],
+        "n": [count_text(v, threshold) for v in rows["n"]],
+        "Events": [count_text(v, threshold) for v in rows["events"]],
+        "Hazard ratio (95% CI)": [interval_text(h, lo, hi) for h, lo, hi in
+                                  zip(rows["hazard_ratio"], rows["ci_lower"], rows["ci_upper"])],
+        "p": [p_text(p) for p in rows["p_value"]],
+    })
+
+
+def recurrence_curve(rows: pd.DataFrame, threshold: int, value: str = "cumulative_recurrence"
+                     ) -> pd.DataFrame:
+    """Curve values at fixed years: one row per group, one column per year (% or mean count,
+    with the interval) and the numbers at risk beneath in their own columns."""
+    percent = value == "cumulative_recurrence"
+    rows = rows.copy()
+    rows["cell"] = [
+        "" if pd.isna(v) else (percent_text(v, lo, hi) if percent else
+                               f"{v:.2f} ({lo:.2f}\u2013{hi:.2f})")
+        for v, lo, hi in zip(rows[value], rows["ci_lower"], rows["ci_upper"])]
+    rows["risk"] = [count_text(v, threshold) or "0" for v in rows["at_risk"]]
+    out = pd.DataFrame({"Group": list(dict.fromkeys(rows["group"]))})
+    for years, part in rows.groupby("years", sort=True):
+        label = f"{years:g} y"
+        cells = part.set_index("group")
+        out[label] = [cells.at[g, "cell"] for g in out["Group"]]
+        out[f"at risk {label}"] = [cells.at[g, "risk"] for g in out["Group"]]
+    return out
+
+
+def proportional_hazards(rows: pd.DataFrame) -> pd.DataFrame:
+    """The PH check of one model: chi-square, df, p and the verdict in words."""
+    return pd.DataFrame({
+        "Term": ["all terms together" if t == "GLOBAL" else t for t in rows["term"]],
+        "Chi-square": [f"{c:.2f}" for c in rows["chi_square"]],
+        "df": rows["df"].astype(int).astype(str),
+        "p": [p_text(p) for p in rows["p_value"]],
+        "Verdict": rows["verdict"],
+    })

@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from cohortstone.config.spec import DataSpec
+from cohortstone.sources import clinic
 
 SEED = 20261202
 LABEL = "Lakemoor Valley Health Survey (invented demo data; not real people, not findings)"
@@ -31,8 +32,16 @@ TRUE_LOG_ODDS = {
 
 
 def load(spec: DataSpec | None = None, seed: int = SEED) -> pd.DataFrame:
-    """Return the invented survey table (person level, harmonized schema)."""
+    """Return the invented survey table (person level, harmonized schema); the datasets
+    `clinic` and `clinic_intervals` are the invented clinic cohort of `sources.clinic`."""
+    if spec is not None and spec.dataset in clinic.DATASETS:
+        return clinic.load(spec)
     return make_survey(np.random.default_rng(seed))
+
+
+def label(dataset: str | None) -> str:
+    """What the invented demo dataset is, in words for the report."""
+    return clinic.LABEL if dataset in clinic.DATASETS else LABEL
 
 
 def make_survey(rng: np.random.Generator) -> pd.DataFrame:

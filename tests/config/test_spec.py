@@ -62,7 +62,7 @@ def test_a_dict_config_is_accepted_for_notebooks():
     ("quantiles: 1", "expected a whole number from 2 to 10"),
     ("adjust: [water_l_day]", "is also listed in `adjust`"),
     ("reference: {bmi: '1'}", "neither the exposure nor in `adjust`"),
-    ("type: recurrence", "planned but not available"),
+    ("type: recurrence", "recurrence models take `event` (or `event_date`) for the recurrence"),
     ("categorical: [race]", "`race` is neither the exposure nor in `adjust`"),
     ("expsure: x", "Did you mean `exposure`?"),
 ])
