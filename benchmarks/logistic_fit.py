@@ -30,8 +30,6 @@ from __future__ import annotations
 import argparse
 import gc
 import os
-import shutil
-import subprocess
 import sys
 import tempfile
 import time
@@ -41,6 +39,8 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+
+from common import blas_info, mark, r_available, run_r_on_matrix
 
 from cohortstone.config.spec import DesignSpec
 from cohortstone.design import make_design
@@ -162,58 +162,13 @@ cat("RITER", f$iter, "\n")
 """
 
 
-def r_available() -> tuple[bool, str]:
-    rscript = shutil.which("Rscript")
-    if not rscript:
-        return False, "Rscript not found"
-    probe = subprocess.run([rscript, "-e", "cat(requireNamespace('survey', quietly=TRUE))"],
-                           capture_output=True, text=True)
-    if probe.stdout.strip() != "TRUE":
-        return False, "R package `survey` not installed"
-    return True, rscript
-
-
 def run_r(data: Data, rscript: str, workdir: Path) -> dict:
     cols = ["weight", "strata", "psu", *COVARIATES, "y"]
-    matrix = np.asfortranarray(data.frame[cols].to_numpy(dtype="<f8"))
-    path = workdir / "design.f64"
-    matrix.ravel(order="F").tofile(path)        # column-major, as R's matrix() fills
-    script = workdir / "fit.R"
-    script.write_text(R_SCRIPT)
-    out = subprocess.run([rscript, str(script), str(path), str(matrix.shape[0]),
-                          str(matrix.shape[1]), ",".join(cols)],
-                         capture_output=True, text=True)
-    if out.returncode != 0:
-        raise RuntimeError(f"Rscript failed:\n{out.stderr[-2000:]}")
-    found = {}
-    for line in out.stdout.splitlines():
-        key, *vals = line.split()
-        if key == "RTIME":
-            found["seconds"] = float(vals[0])
-        elif key in ("RCOEF", "RSE"):
-            found[key] = np.array([float(v) for v in vals])
-        elif key == "RITER":
-            found["iter"] = int(vals[0])
-    return found
+    return run_r_on_matrix(rscript, R_SCRIPT, data.frame[cols].to_numpy(dtype="<f8"), cols,
+                           workdir)
 
 
 # --------------------------------------------------------------------------------- report --
-
-def blas_info() -> str:
-    env = ", ".join(f"{k}={os.environ[k]}" for k in sorted(os.environ)
-                    if k.startswith(("OPENBLAS", "OMP_", "MKL_", "BLIS_")))
-    try:
-        from threadpoolctl import threadpool_info
-        pools = "; ".join(f"{p.get('internal_api')} {p.get('version')} "
-                          f"threads={p.get('num_threads')}" for p in threadpool_info())
-    except ImportError:
-        pools = "threadpoolctl not installed (thread count unknown)"
-    return f"{pools}; env: {env or 'no BLAS/OpenMP variables set'}"
-
-
-def mark(ok: bool | None) -> str:
-    return "n/a" if ok is None else ("PASS" if ok else "MISS")
-
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
@@ -226,7 +181,7 @@ def main(argv: list[str] | None = None) -> int:
     print(f"python {sys.version.split()[0]}, numpy {np.__version__}, "
           f"cpus available {len(os.sched_getaffinity(0))}")
     print(f"BLAS: {blas_info()}")
-    use_r, r_note = (False, "--no-r given") if args.no_r else r_available()
+    use_r, r_note = (False, "--no-r given") if args.no_r else r_available('survey')
     if not use_r:
         print(f"R comparison skipped: {r_note}")
     print()

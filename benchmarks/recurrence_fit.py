@@ -35,8 +35,6 @@ from __future__ import annotations
 import argparse
 import gc
 import os
-import shutil
-import subprocess
 import sys
 import tempfile
 import time
@@ -45,6 +43,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+
+from common import blas_info, mark, r_available, run_r_on_matrix
 
 from cohortstone.models import cox
 
@@ -138,57 +138,11 @@ if (args[5] == "yes") {
 """
 
 
-def r_available() -> tuple[bool, str]:
-    rscript = shutil.which("Rscript")
-    if not rscript:
-        return False, "Rscript not found"
-    probe = subprocess.run([rscript, "-e", "cat(requireNamespace('survival', quietly=TRUE))"],
-                           capture_output=True, text=True)
-    if probe.stdout.strip() != "TRUE":
-        return False, "R package `survival` not installed"
-    return True, rscript
-
-
 def run_r(data: Data, rscript: str, workdir: Path, clustered: bool) -> dict:
     cols = ["time", "event", "clinic", *NAMES]
     matrix = np.column_stack([data.time, data.event, data.clinic.astype(float), data.x])
-    path = workdir / "cohort.f64"
-    np.asfortranarray(matrix.astype("<f8")).ravel(order="F").tofile(path)
-    script = workdir / "fit.R"
-    script.write_text(R_SCRIPT)
-    out = subprocess.run([rscript, str(script), str(path), str(matrix.shape[0]),
-                          str(matrix.shape[1]), ",".join(cols), "yes" if clustered else "no"],
-                         capture_output=True, text=True)
-    if out.returncode != 0:
-        raise RuntimeError(f"Rscript failed:\n{out.stderr[-2000:]}")
-    found = {}
-    for line in out.stdout.splitlines():
-        key, *vals = line.split()
-        if key == "RTIME":
-            found["seconds"] = float(vals[0])
-        elif key == "RTIME_PLAIN":
-            found["plain_seconds"] = float(vals[0])
-        elif key in ("RCOEF", "RSE"):
-            found[key] = np.array([float(v) for v in vals])
-        elif key == "RITER":
-            found["iter"] = int(vals[0])
-    return found
-
-
-def blas_info() -> str:
-    env = ", ".join(f"{k}={os.environ[k]}" for k in sorted(os.environ)
-                    if k.startswith(("OPENBLAS", "OMP_", "MKL_", "BLIS_")))
-    try:
-        from threadpoolctl import threadpool_info
-        pools = "; ".join(f"{p.get('internal_api')} {p.get('version')} "
-                          f"threads={p.get('num_threads')}" for p in threadpool_info())
-    except ImportError:
-        pools = "threadpoolctl not installed (thread count unknown)"
-    return f"{pools}; env: {env or 'no BLAS/OpenMP variables set'}"
-
-
-def mark(ok: bool | None) -> str:
-    return "n/a" if ok is None else ("PASS" if ok else "MISS")
+    return run_r_on_matrix(rscript, R_SCRIPT, matrix, cols, workdir,
+                           "yes" if clustered else "no")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -205,7 +159,7 @@ def main(argv: list[str] | None = None) -> int:
     print(f"python {sys.version.split()[0]}, numpy {np.__version__}, "
           f"cpus available {len(os.sched_getaffinity(0))}")
     print(f"BLAS: {blas_info()}")
-    use_r, r_note = (False, "--no-r given") if args.no_r else r_available()
+    use_r, r_note = (False, "--no-r given") if args.no_r else r_available('survival')
     if not use_r:
         print(f"R comparison skipped: {r_note}")
     print()

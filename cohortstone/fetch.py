@@ -9,7 +9,6 @@ SHA-256 of every file is written to `checksums.sha256` (one `<hex>  <file>` line
 """
 from __future__ import annotations
 
-import hashlib
 import http.client
 import os
 import sys
@@ -21,6 +20,7 @@ from pathlib import Path
 from typing import TextIO
 
 from cohortstone import __version__
+from cohortstone.checksums import sha256
 from cohortstone.errors import ConfigError, DataError
 from cohortstone.sources.nhanes.cycles import COMPONENTS, CYCLES
 
@@ -111,14 +111,6 @@ def _is_transport(path: Path) -> bool:
         return handle.read(len(TRANSPORT_HEADER)) == TRANSPORT_HEADER
 
 
-def _sha256(path: Path) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
-
-
 def _get(item: Download, part: Path, stream: TextIO, timeout: float) -> None:
     """Stream `item` into `part`, resuming from its size; raise OSError-like on failure."""
     offset = part.stat().st_size if part.exists() else 0
@@ -193,7 +185,7 @@ def fetch(folder: Path, cycles: list[str] | None, components: list[str] | None =
         existing = on_disk.get(item.file.upper())
         target = existing if existing is not None else folder / item.file
         if existing is not None and not refresh and _is_transport(existing):
-            sums[existing.name] = _sha256(existing)
+            sums[existing.name] = sha256(existing)
             lines.append(f"{existing.name}: already present")
             continue
         part = target.with_name(target.name + ".part")
@@ -208,7 +200,7 @@ def fetch(folder: Path, cycles: list[str] | None, components: list[str] | None =
                             "file (perhaps an error page); nothing was kept")
             continue
         os.replace(part, target)
-        sums[target.name] = _sha256(target)
+        sums[target.name] = sha256(target)
         lines.append(f"{target.name}: downloaded")
     _write_checksums(folder, sums)
     if failures:

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from cohortstone import describe, prevalence, sources
+from cohortstone.checksums import sha256
 from cohortstone.config.load import load_yaml
 from cohortstone.config.spec import RECURRENCE_WITH_DESIGN, ModelSpec, Study, parse_study
 from cohortstone.derive import apply_derive
@@ -317,7 +318,7 @@ def run(config: str | Path | dict | Study, out: str | Path | None = None,
     estimates = estimate(prepared, clock)
     inputs = sources.input_hashes(study.data, prepared.source_record)
     if study.config_file:
-        inputs = {study.config_file: manifest.sha256(Path(study.config_file)), **inputs}
+        inputs = {study.config_file: sha256(Path(study.config_file)), **inputs}
     info = _info(study, prepared, estimates, inputs)
     record = {
         "name": study.name, "started": started, "config": study.raw,

@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import dataclasses
-import hashlib
 import json
 import platform
 from importlib import metadata
@@ -13,14 +12,6 @@ import numpy as np
 
 PACKAGES = ("cohortstone", "numpy", "pandas", "scipy", "statsmodels", "lifelines", "pyarrow",
             "matplotlib", "PyYAML")
-
-
-def sha256(path: Path) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
 
 
 def versions() -> dict[str, str]:

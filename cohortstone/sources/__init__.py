@@ -75,7 +75,7 @@ def input_hashes(spec: DataSpec, record: dict) -> dict[str, str]:
     """Path -> SHA-256 of every input file (the `nhanes` loader has computed them already)."""
     if spec.source == "nhanes":
         return nhanes.input_hashes(record)
-    from cohortstone.report.manifest import sha256
+    from cohortstone.checksums import sha256
     return {str(p): sha256(p) for p in input_files(spec)}
 
 

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from cohortstone.errors import DataError
-from cohortstone.report.manifest import sha256
+from cohortstone.checksums import sha256
 from cohortstone.sources.nhanes import cache, fluids, foods, recode, weights
 from cohortstone.sources.nhanes.cycles import COLUMN_COMPONENT, CYCLES, DAY1, components_for
 from cohortstone.sources.nhanes.files import Located, locate, missing_message, read_xpt, require
