@@ -3,12 +3,44 @@ describing the BLAS in use, and PASS/MISS marks. Benchmarks print figures; nothi
 anything in the test suite."""
 from __future__ import annotations
 
+import gc
 import os
 import shutil
 import subprocess
+import tracemalloc
 from pathlib import Path
+from typing import Callable
 
 import numpy as np
+
+
+# R lines that read the matrix written by `run_r_on_matrix` into a data frame `d`
+R_READ_MATRIX = r"""
+args <- commandArgs(trailingOnly = TRUE)
+path <- args[1]; n <- as.integer(args[2]); k <- as.integer(args[3])
+cols <- strsplit(args[4], ",", fixed = TRUE)[[1]]
+con <- file(path, "rb")
+v <- readBin(con, what = "double", n = n * k, size = 8, endian = "little")
+close(con)
+stopifnot(length(v) == n * k)
+d <- as.data.frame(matrix(v, nrow = n, ncol = k))
+rm(v)
+names(d) <- cols
+"""
+
+
+def peak_bytes(work: Callable[[], object]) -> int:
+    """Peak memory allocated while `work()` runs, above what was allocated before."""
+    gc.collect()
+    tracemalloc.start()
+    try:
+        base = tracemalloc.get_traced_memory()[0]
+        tracemalloc.reset_peak()
+        work()
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    return peak - base
 
 
 def r_available(package: str) -> tuple[bool, str]:

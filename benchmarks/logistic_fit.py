@@ -33,14 +33,13 @@ import os
 import sys
 import tempfile
 import time
-import tracemalloc
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from common import blas_info, mark, r_available, run_r_on_matrix
+from common import R_READ_MATRIX, blas_info, mark, peak_bytes, r_available, run_r_on_matrix
 
 from cohortstone.config.spec import DesignSpec
 from cohortstone.design import make_design
@@ -124,32 +123,13 @@ def peak_memory(data: Data) -> int:
     The Design is built afresh (outside the measurement), so anything a first fit caches on
     it counts towards the peak."""
     design = make_design(data.frame, DesignSpec("weight", "strata", "psu"))
-    gc.collect()
-    tracemalloc.start()
-    try:
-        base = tracemalloc.get_traced_memory()[0]
-        tracemalloc.reset_peak()
-        fit(data.x, data.y, data.w, design, NAMES)
-        peak = tracemalloc.get_traced_memory()[1]
-    finally:
-        tracemalloc.stop()
-    return peak - base
+    return peak_bytes(lambda: fit(data.x, data.y, data.w, design, NAMES))
 
 
 # ---------------------------------------------------------------------------------------- R --
 
-R_SCRIPT = r"""
-args <- commandArgs(trailingOnly = TRUE)
-path <- args[1]; n <- as.integer(args[2]); k <- as.integer(args[3])
-cols <- strsplit(args[4], ",", fixed = TRUE)[[1]]
+R_SCRIPT = R_READ_MATRIX + r"""
 suppressMessages(library(survey))
-con <- file(path, "rb")
-v <- readBin(con, what = "double", n = n * k, size = 8, endian = "little")
-close(con)
-stopifnot(length(v) == n * k)
-d <- as.data.frame(matrix(v, nrow = n, ncol = k))
-rm(v)
-names(d) <- cols
 des <- svydesign(ids = ~psu, strata = ~strata, weights = ~weight, nest = TRUE, data = d)
 form <- as.formula(paste("y ~", paste(cols[4:(k - 1)], collapse = " + ")))
 invisible(gc())

@@ -38,13 +38,12 @@ import os
 import sys
 import tempfile
 import time
-import tracemalloc
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
-from common import blas_info, mark, r_available, run_r_on_matrix
+from common import R_READ_MATRIX, blas_info, mark, peak_bytes, r_available, run_r_on_matrix
 
 from cohortstone.models import cox
 
@@ -94,32 +93,15 @@ def time_fit(data: Data, repeats: int, clustered: bool = True):
 
 
 def peak_memory(data: Data) -> int:
-    gc.collect()
-    tracemalloc.start()
-    try:
-        base = tracemalloc.get_traced_memory()[0]
-        tracemalloc.reset_peak()
-        cox.fit(data.x, data.time, data.event, cluster=data.clinic, names=NAMES)
-        peak = tracemalloc.get_traced_memory()[1]
-    finally:
-        tracemalloc.stop()
-    return peak - base
+    """Peak bytes newly allocated (tracemalloc) during one clustered fit."""
+    return peak_bytes(lambda: cox.fit(data.x, data.time, data.event, cluster=data.clinic,
+                                      names=NAMES))
 
 
 # ---------------------------------------------------------------------------------------- R --
 
-R_SCRIPT = r"""
-args <- commandArgs(trailingOnly = TRUE)
-path <- args[1]; n <- as.integer(args[2]); k <- as.integer(args[3])
-cols <- strsplit(args[4], ",", fixed = TRUE)[[1]]
+R_SCRIPT = R_READ_MATRIX + r"""
 suppressMessages(library(survival))
-con <- file(path, "rb")
-v <- readBin(con, what = "double", n = n * k, size = 8, endian = "little")
-close(con)
-stopifnot(length(v) == n * k)
-d <- as.data.frame(matrix(v, nrow = n, ncol = k))
-rm(v)
-names(d) <- cols
 form <- as.formula(paste("Surv(time, event) ~", paste(cols[4:k], collapse = " + "),
                          "+ cluster(clinic)"))
 plain <- as.formula(paste("Surv(time, event) ~", paste(cols[4:k], collapse = " + ")))

@@ -25,19 +25,29 @@ def percent_text(value: float, lower: float, upper: float) -> str:
     return f"{100 * value:.1f} ({100 * lower:.1f}\u2013{100 * upper:.1f})"
 
 
-def ratios(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
-    """One model's odds-ratio rows: term, level (or unit), n, cases, ratio and interval, p."""
+def _ratio_rows(rows: pd.DataFrame, threshold: int, ratio: str, ratio_label: str,
+                count: str, count_label: str) -> pd.DataFrame:
     return pd.DataFrame({
         "Term": rows["term"],
         "Level": [lv if isinstance(lv, str) and lv else (f"per {p:g}" if pd.notna(p) else "")
                   for lv, p in zip(rows["level"], rows["per"])],
         "n": [count_text(v, threshold) for v in rows["n"]],
-        "Cases": [count_text(v, threshold) for v in rows["cases"]],
-        "Odds ratio (95% CI)": [interval_text(o, lo, hi) for o, lo, hi in
-                                zip(rows["odds_ratio"], rows["ci_lower"], rows["ci_upper"])],
+        count_label: [count_text(v, threshold) for v in rows[count]],
+        f"{ratio_label} (95% CI)": [interval_text(r, lo, hi) for r, lo, hi in
+                                    zip(rows[ratio], rows["ci_lower"], rows["ci_upper"])],
         "p": [p_text(p) for p in rows["p_value"]],
     })
 
+
+def ratios(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
+    """One model's odds-ratio rows: term, level (or unit), n, cases, ratio and interval, p."""
+    return _ratio_rows(rows, threshold, "odds_ratio", "Odds ratio", "cases", "Cases")
+
+
+def hazard_ratios(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
+    """One model's hazard-ratio rows for one outcome: term, level (or unit), n, events, ratio
+    and interval, p."""
+    return _ratio_rows(rows, threshold, "hazard_ratio", "Hazard ratio", "events", "Events")
 
 def prevalence(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
     """Prevalence rows with suppressed estimates blanked and the reliability reason shown."""
@@ -86,21 +96,6 @@ def flow(rows: list[dict], threshold: int) -> pd.DataFrame:
     frame = pd.DataFrame(rows)
     frame["People"] = [count_text(v, threshold) for v in frame["People"]]
     return frame
-
-
-def hazard_ratios(rows: pd.DataFrame, threshold: int) -> pd.DataFrame:
-    """One model's hazard-ratio rows for one outcome: term, level (or unit), n, events, ratio
-    and interval, p."""
-    return pd.DataFrame({
-        "Term": rows["term"],
-        "Level": [lv if isinstance(lv, str) and lv else (f"per {p:g}" if pd.notna(p) else "")
-                  for lv, p in zip(rows["level"], rows["per"])],
-        "n": [count_text(v, threshold) for v in rows["n"]],
-        "Events": [count_text(v, threshold) for v in rows["events"]],
-        "Hazard ratio (95% CI)": [interval_text(h, lo, hi) for h, lo, hi in
-                                  zip(rows["hazard_ratio"], rows["ci_lower"], rows["ci_upper"])],
-        "p": [p_text(p) for p in rows["p_value"]],
-    })
 
 
 def recurrence_curve(rows: pd.DataFrame, threshold: int, value: str = "cumulative_recurrence"
