@@ -201,6 +201,9 @@ def build(frame: pd.DataFrame, spec: ModelSpec, population: np.ndarray, weight: 
                             f"{suggest(column, frame)}")
     rows = population & (weight > 0)
     dropped = {}
+    unweighted = int((population & ~(weight > 0)).sum())
+    if unweighted:  # e.g. people outside the survey subsample whose weight the analysis uses
+        dropped["weight 0"] = unweighted
     for column in spec.columns():
         missing = rows & frame[column].isna().to_numpy()
         if missing.any():

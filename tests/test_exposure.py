@@ -89,3 +89,10 @@ def test_outcome_must_be_zero_one():
         build(FRAME.assign(y=FRAME["y"] + 1), spec(), EVERYONE, WEIGHT)
     with pytest.raises(DataError, match="needs both 0 and 1"):
         build(FRAME.assign(y=0), spec(), EVERYONE, WEIGHT)
+
+
+def test_people_with_weight_zero_leave_the_domain_with_their_reason():
+    weight = np.array([1.0, 0, 1, 1, 1, 1, 1, 0])
+    m = build(FRAME, spec(cuts=(1, 2)), EVERYONE, weight)
+    assert m.dropped == {"weight 0": 2, "missing y": 1}
+    assert not m.in_model[1]
