@@ -5,6 +5,7 @@ import numpy as np
 import pandas as pd
 
 from cohortstone.config.spec import DeriveSpec
+from cohortstone.columns import require
 from cohortstone.errors import DataError
 
 
@@ -29,10 +30,7 @@ def apply_derive(frame: pd.DataFrame, rules: tuple[DeriveSpec, ...]) -> pd.DataF
         return frame
     frame = frame.copy()
     for rule in rules:
-        if rule.source_column not in frame.columns:
-            from cohortstone.population import suggest
-            raise DataError(f"derive.{rule.name}.from: column `{rule.source_column}` is not in "
-                            f"the data.{suggest(rule.source_column, frame)}")
+        require(frame, [(f"derive.{rule.name}.from", rule.source_column)])
         source = frame[rule.source_column]
         if not pd.api.types.is_numeric_dtype(source):
             raise DataError(f"derive.{rule.name}: column `{rule.source_column}` must hold "

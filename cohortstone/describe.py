@@ -11,7 +11,7 @@ import pandas as pd
 
 from cohortstone.config.spec import DescribeSpec
 from cohortstone.design import Design
-from cohortstone.errors import DataError
+from cohortstone.columns import require
 from cohortstone.exposure import level_text
 from cohortstone.means import domain_mean
 from cohortstone.prevalence import levels
@@ -50,12 +50,8 @@ def _rows_for(frame: pd.DataFrame, column: str, spec: DescribeSpec, design: Desi
 
 def validate(frame: pd.DataFrame, spec: DescribeSpec) -> None:
     """Every column the block names must be in the data."""
-    from cohortstone.population import suggest
-    for key, column in [*[("columns", c) for c in spec.columns],
-                        *([("by", spec.by)] if spec.by else [])]:
-        if column not in frame.columns:
-            raise DataError(f"describe.{key}: column `{column}` is not in the data."
-                            f"{suggest(column, frame)}")
+    require(frame, [*[("describe.columns", c) for c in spec.columns],
+                    *([("describe.by", spec.by)] if spec.by else [])])
 
 
 def table(frame: pd.DataFrame, spec: DescribeSpec, population: np.ndarray,

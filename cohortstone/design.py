@@ -17,6 +17,7 @@ import pandas as pd
 from scipy import sparse
 
 from cohortstone.config.spec import DesignSpec
+from cohortstone.columns import require
 from cohortstone.errors import DataError, DesignError
 
 
@@ -57,10 +58,7 @@ def _codes(values: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _check_column(frame: pd.DataFrame, key: str, column: str) -> pd.Series:
-    if column not in frame.columns:
-        from cohortstone.population import suggest
-        raise DataError(f"design.{key}: column `{column}` is not in the data."
-                        f"{suggest(column, frame)}")
+    require(frame, [(f"design.{key}", column)])
     series = frame[column]
     missing = int(series.isna().sum())
     if missing:

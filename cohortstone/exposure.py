@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from cohortstone.config.spec import ModelSpec
+from cohortstone.columns import require
 from cohortstone.errors import DataError
 
 INTERCEPT = "(intercept)"
@@ -193,12 +194,9 @@ def binary_outcome(frame: pd.DataFrame, column: str, rows: np.ndarray, key: str,
 def build(frame: pd.DataFrame, spec: ModelSpec, population: np.ndarray, weight: np.ndarray
           ) -> ModelMatrix:
     """Model matrix for `spec` on every row; rows missing a model column leave the domain."""
-    from cohortstone.population import suggest
-    for key, column in [("outcome", spec.outcome), ("exposure", spec.exposure),
-                        *[("adjust", c) for c in spec.adjust]]:
-        if column not in frame.columns:
-            raise DataError(f"models.{spec.name}.{key}: column `{column}` is not in the data."
-                            f"{suggest(column, frame)}")
+    require(frame, [(f"models.{spec.name}.{key}", column) for key, column in
+                    [("outcome", spec.outcome), ("exposure", spec.exposure),
+                     *[("adjust", c) for c in spec.adjust]]])
     rows = population & (weight > 0)
     dropped = {}
     unweighted = int((population & ~(weight > 0)).sum())

@@ -12,6 +12,7 @@ import pandas as pd
 
 from cohortstone.config.spec import PrevalenceSpec
 from cohortstone.design import Design, degrees_of_freedom
+from cohortstone.columns import require, suggest
 from cohortstone.errors import DataError
 from cohortstone.exposure import binary_outcome, level_text
 from cohortstone.intervals import korn_graubard
@@ -57,7 +58,6 @@ def _crude(design: Design, y: np.ndarray, domain: np.ndarray) -> dict:
 def age_groups(frame: pd.DataFrame, standard: Standard) -> np.ndarray:
     """Standard age group per row (−1 below the first cut or missing)."""
     if standard.column not in frame.columns:
-        from cohortstone.population import suggest
         raise DataError(f"prevalence.standardize: the age column `{standard.column}` is not in "
                         f"the data.{suggest(standard.column, frame)}")
     age = frame[standard.column].to_numpy(dtype=float)
@@ -98,12 +98,9 @@ def _standardized(design: Design, y: np.ndarray, domain: np.ndarray, groups: np.
 def validate(frame: pd.DataFrame, spec: PrevalenceSpec, population: np.ndarray,
              design: Design) -> tuple[np.ndarray, np.ndarray]:
     """Check the block's columns and outcome codes; the outcome's domain and 0/1 values."""
-    from cohortstone.population import suggest
-    for key, column in [("outcome", spec.outcome), *[("by", c) for c in spec.by],
-                        *([("trend", spec.trend)] if spec.trend else [])]:
-        if column not in frame.columns:
-            raise DataError(f"prevalence.{key}: column `{column}` is not in the data."
-                            f"{suggest(column, frame)}")
+    require(frame, [("prevalence.outcome", spec.outcome),
+                    *[("prevalence.by", c) for c in spec.by],
+                    *([("prevalence.trend", spec.trend)] if spec.trend else [])])
     base = population & (design.weight > 0) & frame[spec.outcome].notna().to_numpy()
     if not base.any():
         raise DataError(f"prevalence.outcome: no one in the population has `{spec.outcome}` "

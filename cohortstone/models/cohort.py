@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from cohortstone.config.spec import ModelSpec
+from cohortstone.columns import require
 from cohortstone.errors import DataError
 from cohortstone.exposure import ModelMatrix, build
 
@@ -176,18 +177,11 @@ def _codes(frame: pd.DataFrame, spec: ModelSpec, key: str, column: str, rows: np
     return codes
 
 
-def _check_columns(frame: pd.DataFrame, spec: ModelSpec) -> None:
-    from cohortstone.population import suggest
-    for key, column in spec.recurrence.named_columns():
-        if column not in frame.columns:
-            raise DataError(f"models.{spec.name}.{key}: column `{column}` is not in the data."
-                            f"{suggest(column, frame)}")
-
-
 def prepare(frame: pd.DataFrame, spec: ModelSpec, population: np.ndarray) -> Cohort:
     """Check the follow-up columns in the population, convert dates, code the covariates."""
     r = spec.recurrence
-    _check_columns(frame, spec)
+    require(frame, [(f"models.{spec.name}.{key}", column)
+                    for key, column in spec.recurrence.named_columns()])
     rows = population.copy()
     start = person = None
     if r.form == "dates":
