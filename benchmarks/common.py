@@ -7,6 +7,7 @@ import gc
 import os
 import shutil
 import subprocess
+import sys
 import tracemalloc
 from pathlib import Path
 from typing import Callable
@@ -80,6 +81,18 @@ def run_r_on_matrix(rscript: str, script: str, matrix: np.ndarray, columns: list
         elif key == "RITER":
             found["iter"] = int(vals[0])
     return found
+
+
+def preamble(no_r: bool, package: str) -> tuple[bool, str]:
+    """Print the machine facts every benchmark starts with; (use R?, Rscript path or why not)."""
+    print(f"python {sys.version.split()[0]}, numpy {np.__version__}, "
+          f"cpus available {len(os.sched_getaffinity(0))}")
+    print(f"BLAS: {blas_info()}")
+    use_r, r_note = (False, "--no-r given") if no_r else r_available(package)
+    if not use_r:
+        print(f"R comparison skipped: {r_note}")
+    print()
+    return use_r, r_note
 
 
 def blas_info() -> str:

@@ -29,7 +29,6 @@ from __future__ import annotations
 
 import argparse
 import gc
-import os
 import sys
 import tempfile
 import time
@@ -39,7 +38,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from common import R_READ_MATRIX, blas_info, mark, peak_bytes, r_available, run_r_on_matrix
+from common import R_READ_MATRIX, mark, peak_bytes, preamble, run_r_on_matrix
 
 from cohortstone.config.spec import DesignSpec
 from cohortstone.design import make_design
@@ -158,13 +157,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--seed", type=int, default=20260601)
     args = parser.parse_args(argv)
 
-    print(f"python {sys.version.split()[0]}, numpy {np.__version__}, "
-          f"cpus available {len(os.sched_getaffinity(0))}")
-    print(f"BLAS: {blas_info()}")
-    use_r, r_note = (False, "--no-r given") if args.no_r else r_available('survey')
-    if not use_r:
-        print(f"R comparison skipped: {r_note}")
-    print()
+    use_r, r_note = preamble(args.no_r, "survey")
 
     rows_out = []
     with tempfile.TemporaryDirectory(prefix="cohortstone-bench-") as tmp:

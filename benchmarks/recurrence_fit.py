@@ -34,7 +34,6 @@ from __future__ import annotations
 
 import argparse
 import gc
-import os
 import sys
 import tempfile
 import time
@@ -43,7 +42,7 @@ from pathlib import Path
 
 import numpy as np
 
-from common import R_READ_MATRIX, blas_info, mark, peak_bytes, r_available, run_r_on_matrix
+from common import R_READ_MATRIX, mark, peak_bytes, preamble, run_r_on_matrix
 
 from cohortstone.models import cox
 
@@ -138,13 +137,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--seed", type=int, default=20261205)
     args = parser.parse_args(argv)
 
-    print(f"python {sys.version.split()[0]}, numpy {np.__version__}, "
-          f"cpus available {len(os.sched_getaffinity(0))}")
-    print(f"BLAS: {blas_info()}")
-    use_r, r_note = (False, "--no-r given") if args.no_r else r_available('survival')
-    if not use_r:
-        print(f"R comparison skipped: {r_note}")
-    print()
+    use_r, r_note = preamble(args.no_r, "survival")
 
     rows_out, r_cluster_seen = [], None
     with tempfile.TemporaryDirectory(prefix="cohortstone-bench-") as tmp:
